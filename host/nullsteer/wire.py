@@ -398,3 +398,27 @@ def field_bool(fields, key, seq=0, default=None):
 def format_ohms(ohms):
     """Ohms as the protocol writes them: one decimal (``820.0``)."""
     return "%.1f" % ohms
+
+
+def nearest_by_ratio(table, ohms):
+    """The entry of ``table`` ((mask, ohms) pairs) nearest to ``ohms`` by ratio.
+
+    "Nearest by ratio" minimises |ln(R / R_entry)|, so 450 Ω is as far from 900 Ω as
+    1800 Ω is. Returns ``(mask, entry_ohms, error_pct)`` with the signed error
+    ``100·(entry/ohms − 1)``; None for an empty table or ``ohms`` <= 0.
+    """
+    if ohms <= 0 or not table:
+        return None
+    best = None
+    best_score = 0.0
+    for entry in table:
+        r = entry[1]
+        if r <= 0:
+            continue
+        score = r / ohms if r >= ohms else ohms / r
+        if best is None or score < best_score:
+            best = entry
+            best_score = score
+    if best is None:
+        return None
+    return (best[0], best[1], 100.0 * (best[1] / ohms - 1.0))

@@ -54,3 +54,47 @@ def require(condition: bool, key: str, message: str) -> None:
     """Raise :class:`ConfigError` (exit 2) naming ``key`` unless ``condition``."""
     if not condition:
         raise ConfigError(key, message)
+
+
+def add_board_options(parser: argparse.ArgumentParser) -> None:
+    """--link / --config / --device / --timeout, shared by every command that talks to a board."""
+    parser.add_argument("--link", metavar="URL",
+                        help="board URL (serial:///dev/ttyUSB0, sim://, mqtt://host/id); "
+                             "default $NULLSTEER_LINK or the device in --config")
+    parser.add_argument("--config", metavar="FILE", help="station file (TOML)")
+    parser.add_argument("--device", metavar="ID", help="device id from the station file")
+    parser.add_argument("--timeout", type=positive_float("--timeout"), default=None,
+                        metavar="S", help="reply timeout in seconds (default 1)")
+
+
+def connect(args: argparse.Namespace):
+    """A :class:`~nullsteer.controller.Controller` for the board the arguments name.
+
+    Precedence: ``--link``, then ``$NULLSTEER_LINK``, then the ``[[device]]`` of
+    ``--config`` (``--device`` picks one of several).
+    """
+    import os
+
+    from nullsteer.config import load_station
+    from nullsteer.controller import Controller
+    from nullsteer.devices import parse_devices, pick_device
+    from nullsteer.links import open_link
+
+    url = args.link or os.environ.get("NULLSTEER_LINK")
+    device = None
+    if getattr(args, "config", None):
+        station = load_station(args.config)
+        devices = parse_devices(station)
+        if devices and (not url or args.device):
+            device = pick_device(devices, args.device)
+            url = url if args.link else device.link
+    if not url:
+        raise ConfigError("--link", "no board given: use --link URL, set NULLSTEER_LINK, "
+                                    "or --config with a [[device]] entry")
+    options = {}
+    if device is not None and device.board_config is not None:
+        options["board_config"] = str(device.board_config)
+    link = open_link(url, **options)
+    timeout = args.timeout or (device.timeout_s if device else 1.0)
+    return Controller(link, timeout_s=timeout, retries=device.retries if device else 2,
+                      key=device.key if device else None)

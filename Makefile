@@ -1,0 +1,52 @@
+# nullsteer: `make demo` and `make test` each do all the set-up on a fresh machine.
+PYTHON ?= python3
+VENV   := .venv
+BIN    := $(VENV)/bin
+STAMP  := $(VENV)/.installed-stamp
+STUBS  := .stubs
+STUBS_STAMP := $(STUBS)/.installed-stamp
+DEMO_OUT ?= out/demo
+
+.PHONY: all venv broker stubs typecheck test demo bench clean
+
+all: test
+
+$(STAMP): pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install -q --upgrade pip
+	$(BIN)/python -m pip install -q -e '.[dev,plot]'
+	touch $@
+
+venv: $(STAMP)
+
+# The test fixture starts its own mosquitto on a free loopback port; it only has to be installed.
+broker:
+	@if command -v mosquitto >/dev/null 2>&1 || [ -x /usr/sbin/mosquitto ]; then :; \
+	elif [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then \
+	  echo "installing mosquitto (apt-get)"; \
+	  apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq mosquitto >/dev/null; \
+	else \
+	  echo "mosquitto is not installed: install it (e.g. 'sudo apt-get install mosquitto') and rerun"; exit 1; \
+	fi
+
+# MicroPython stubs live in a folder of their own: they shadow time, socket... in a venv.
+$(STUBS_STAMP): | $(STAMP)
+	$(BIN)/python -m pip install -q --target $(STUBS) micropython-rp2-stubs
+	touch $@
+
+stubs: $(STUBS_STAMP)
+
+typecheck: venv stubs
+	bash firmware/typecheck.sh $(BIN)/python $(STUBS)
+
+test: venv broker typecheck
+	$(BIN)/python -m pytest -q
+
+demo: venv
+	$(BIN)/nullsteer demo --config examples/station.toml --out $(DEMO_OUT)
+
+bench: venv
+	@for b in benchmarks/bench_*.py; do echo "== $$b"; $(BIN)/python $$b || exit 1; done
+
+clean:
+	rm -rf $(VENV) $(STUBS) out .pytest_cache .mypy_cache

@@ -1,0 +1,267 @@
+"""Talking to one board: requests with sequence numbers, timeouts, retries, typed replies.
+
+Commands are absolute ("be in this state"), so a retry after a lost reply is always
+safe; "flip" is computed here from the board's reported state.
+"""
+
+from __future__ import annotations
+
+import logging
+import time
+from collections.abc import Iterable
+from dataclasses import dataclass
+from enum import Enum
+
+from nullsteer import wire
+from nullsteer.errors import BoardError, ConfigError, LinkError
+from nullsteer.links import Link
+
+log = logging.getLogger(__name__)
+
+
+class FedEnd(str, Enum):
+    """Which corner of the loop feeds the receiver; the other one is terminated."""
+
+    A = "A"
+    B = "B"
+
+    @property
+    def other(self) -> FedEnd:
+        return FedEnd.B if self is FedEnd.A else FedEnd.A
+
+    @classmethod
+    def parse(cls, text: str, key: str = "--fed-end") -> FedEnd:
+        try:
+            return cls(text.upper())
+        except ValueError:
+            raise ConfigError(key, f"must be A or B, got {text!r}") from None
+
+
+@dataclass(frozen=True)
+class BoardState:
+    """The board's relay state as it reports it."""
+
+    fed_end: FedEnd
+    mask: int
+    open: bool
+    ohms: float | None = None
+
+    def to_json(self) -> dict[str, object]:
+        return {"fed_end": self.fed_end.value, "mask": self.mask, "open": self.open,
+                "ohms": self.ohms}
+
+
+@dataclass(frozen=True)
+class BoardStatus:
+    """STATUS reply: state plus housekeeping."""
+
+    state: BoardState
+    firmware: str
+    boots: int
+    uptime_s: int
+    heap_bytes: int
+    changed: bool | None = None
+
+    def to_json(self) -> dict[str, object]:
+        out = self.state.to_json()
+        out.update(firmware=self.firmware, boots=self.boots, uptime_s=self.uptime_s,
+                   heap_bytes=self.heap_bytes)
+        if self.changed is not None:
+            out["changed"] = self.changed
+        return out
+
+
+@dataclass(frozen=True)
+class BoardInfo:
+    """INFO reply."""
+
+    firmware: str
+    protocol: int
+    board: str
+    bits: int
+    roles: tuple[str, ...]
+    table_entries: int
+
+    @property
+    def max_mask(self) -> int:
+        return (1 << self.bits) - 1
+
+    def to_json(self) -> dict[str, object]:
+        return {"firmware": self.firmware, "protocol": self.protocol, "board": self.board,
+                "bits": self.bits, "roles": list(self.roles),
+                "table_entries": self.table_entries}
+
+
+def _int(fields: dict[str, str], key: str, default: int = 0) -> int:
+    try:
+        return int(fields.get(key, default))
+    except ValueError:
+        raise LinkError(f"board sent a bad {key}={fields.get(key)!r}") from None
+
+
+def state_from_fields(fields: dict[str, str]) -> BoardState:
+    """A :class:`BoardState` from the fields of an OK reply to STATUS or SET."""
+    try:
+        ohms = float(fields["ohms"]) if "ohms" in fields else None
+        return BoardState(FedEnd(fields["end"]), int(fields["mask"]), fields["open"] == "1", ohms)
+    except (KeyError, ValueError) as exc:
+        raise LinkError(f"board reply lacks a valid state field ({exc})") from None
+
+
+def status_from_fields(fields: dict[str, str]) -> BoardStatus:
+    changed = fields.get("changed")
+    return BoardStatus(state=state_from_fields(fields), firmware=fields.get("fw", "?"),
+                       boots=_int(fields, "boots"), uptime_s=_int(fields, "up_s"),
+                       heap_bytes=_int(fields, "heap"),
+                       changed=None if changed is None else changed == "1")
+
+
+class Controller:
+    """One board behind one link.
+
+    Parameters
+    ----------
+    link : Link
+        The transport (see :func:`nullsteer.links.open_link`).
+    timeout_s : float
+        How long to wait for each reply, seconds.
+    retries : int
+        Extra attempts after a timeout (safe: every command is absolute).
+    key : bytes or None
+        Shared key for signed frames (HMAC-SHA256), or None for unsigned frames.
+    """
+
+    def __init__(self, link: Link, timeout_s: float = 1.0, retries: int = 2,
+                 key: bytes | None = None) -> None:
+        self.link = link
+        self.timeout_s = timeout_s
+        self.retries = retries
+        self.key = key
+        self._seq = int(time.monotonic() * 1000) % wire.SEQ_MAX + 1
+        self._info: BoardInfo | None = None
+        self._table: list[tuple[int, float]] | None = None
+
+    # -- plumbing ---------------------------------------------------------------
+    def _next_seq(self) -> int:
+        self._seq = self._seq % wire.SEQ_MAX + 1
+        return self._seq
+
+    def _frame(self, seq: int, verb: str, fields: Iterable[tuple[str, object]]) -> bytes:
+        if self.key is None:
+            return wire.encode(seq, verb, tuple(fields))
+        return wire.sign(seq, verb, tuple(fields), self.key, int(time.time()))
+
+    def request(self, verb: str, fields: Iterable[tuple[str, object]] = ()) -> dict[str, str]:
+        """Send one request and return the fields of its OK reply.
+
+        Raises :class:`BoardError` on an ERR reply and :class:`LinkError` when no valid
+        reply arrives after all attempts.
+        """
+        fields = tuple(fields)
+        seq = self._next_seq()
+        for attempt in range(self.retries + 1):
+            line = self._frame(seq, verb, fields)
+            log.debug("-> %s", line)
+            self.link.write_line(line)
+            reply = self._await(seq)
+            if reply is None:
+                log.info("%s: no reply to %s (attempt %d)", self.link.url, verb, attempt + 1)
+                continue
+            if reply.verb == "ERR":
+                raise BoardError(reply.fields.get("code", "?"),
+                                 reply.fields.get("msg", "").replace("_", " "))
+            return reply.fields
+        raise LinkError(f"{self.link.url}: no reply to {verb} after "
+                        f"{self.retries + 1} attempts of {self.timeout_s:g} s")
+
+    def _await(self, seq: int) -> wire.Frame | None:
+        deadline = time.monotonic() + self.timeout_s
+        while (remaining := deadline - time.monotonic()) > 0:
+            raw = self.link.read_line(remaining)
+            if raw is None:
+                return None
+            try:
+                frame = wire.decode_reply(raw)
+            except wire.WireError as exc:
+                log.info("%s: dropped a bad line (%s)", self.link.url, exc)
+                continue
+            if frame.seq == seq:
+                return frame
+            log.debug("%s: ignored %s seq %d", self.link.url, frame.verb, frame.seq)
+        return None
+
+    # -- commands ---------------------------------------------------------------
+    def ping(self) -> None:
+        self.request("PING")
+
+    def info(self, refresh: bool = False) -> BoardInfo:
+        if self._info is None or refresh:
+            f = self.request("INFO")
+            roles = tuple(r for r in f.get("roles", "").split(",") if r)
+            self._info = BoardInfo(firmware=f.get("fw", "?"), protocol=_int(f, "proto"),
+                                   board=f.get("board", "?"), bits=_int(f, "bits"),
+                                   roles=roles, table_entries=_int(f, "table"))
+        return self._info
+
+    def status(self) -> BoardStatus:
+        return status_from_fields(self.request("STATUS"))
+
+    def table(self) -> list[tuple[int, float]]:
+        """The board's ladder table, (mask, ohms) sorted by ohms; empty if none loaded."""
+        if self._table is None:
+            total = self.info().table_entries
+            rows: list[tuple[int, float]] = []
+            while len(rows) < total:
+                f = self.request("TABLE", (("start", len(rows)), ("count", 16)))
+                chunk = [item for item in f.get("t", "").split(",") if item]
+                if not chunk:
+                    raise LinkError("board sent an empty TABLE chunk")
+                for item in chunk:
+                    mask, _, ohms = item.partition(":")
+                    rows.append((int(mask), float(ohms)))
+            self._table = rows
+        return self._table
+
+    def set_state(self, fed_end: FedEnd, mask: int, open_: bool) -> BoardStatus:
+        """Be in this state. The mask is checked against the board's bits before sending."""
+        info = self.info()
+        if not 0 <= mask <= info.max_mask:
+            raise ConfigError("--mask", f"{mask} is outside 0..{info.max_mask} "
+                                        f"for this board's {info.bits} ladder relays")
+        f = self.request("SET", (("end", fed_end.value), ("mask", mask), ("open", open_)))
+        return self._after_set(f)
+
+    def _after_set(self, fields: dict[str, str]) -> BoardStatus:
+        # SET replies carry the state; fetch housekeeping with it for a full status.
+        state = state_from_fields(fields)
+        status = self.status()
+        changed = fields.get("changed")
+        return BoardStatus(state=state, firmware=status.firmware, boots=status.boots,
+                           uptime_s=status.uptime_s, heap_bytes=status.heap_bytes,
+                           changed=None if changed is None else changed == "1")
+
+    def flip(self) -> BoardStatus:
+        """Swap fed and terminated ends, keeping the termination."""
+        now = self.status().state
+        return self.set_state(now.fed_end.other, now.mask, now.open)
+
+    def self_test(self, dwell_ms: int = 50) -> dict[str, str]:
+        """Run the board's relay self-test (receiver protected throughout)."""
+        info = self.info()
+        relays = max(len(info.roles), info.bits + 3)
+        old = self.timeout_s
+        # each relay is stepped on and off with a dwell each; allow 50 % margin
+        self.timeout_s = old + 1.5 * relays * 2 * dwell_ms / 1000.0
+        try:
+            return self.request("TEST", (("dwell_ms", dwell_ms),))
+        finally:
+            self.timeout_s = old
+
+    def close(self) -> None:
+        self.link.close()
+
+    def __enter__(self) -> Controller:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()

@@ -1,0 +1,102 @@
+"""The boards a station drives: the ``[[device]]`` entries of the station file.
+
+Keys of each entry:
+
+``id``          short name, letters/digits/``-``/``_`` (used in MQTT topics too)
+``link``        transport URL (see :mod:`nullsteer.links`)
+``board``       the board config JSON (pins, roles, ladder table), relative to the file
+``key_file``    optional file holding the shared signing key (hex), relative to the file
+``key_env``     optional environment variable holding the shared key (hex)
+``timeout_s``   reply timeout, seconds (default 1.0)
+``retries``     extra attempts after a timeout (default 2)
+"""
+
+from __future__ import annotations
+
+import os
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+from nullsteer.config import Station, check_unknown, get_float, get_int, get_str
+from nullsteer.errors import ConfigError
+
+_ID = re.compile(r"^[A-Za-z0-9_-]{1,32}$")
+_KEYS = frozenset({"id", "link", "board", "key_file", "key_env", "timeout_s", "retries"})
+
+
+@dataclass(frozen=True)
+class Device:
+    """One board of the station."""
+
+    id: str
+    link: str
+    board_config: Path | None
+    key: bytes | None
+    timeout_s: float
+    retries: int
+
+
+def _read_key(text: str, where: str) -> bytes:
+    text = text.strip()
+    try:
+        key = bytes.fromhex(text)
+    except ValueError:
+        raise ConfigError(where, "signing key must be hex digits") from None
+    if len(key) < 16:
+        raise ConfigError(where, f"signing key must be at least 16 bytes, got {len(key)}")
+    return key
+
+
+def parse_device(station: Station, table: dict, index: int) -> Device:
+    where = f"device[{index}]"
+    check_unknown(table, _KEYS, where)
+    dev_id = get_str(table, "id", where)
+    if not _ID.match(dev_id):
+        raise ConfigError(f"{where}.id", f"use 1-32 letters, digits, '-' or '_', got {dev_id!r}")
+    link = get_str(table, "link", where)
+    if "://" not in link:
+        raise ConfigError(f"{where}.link", f"expected a URL such as serial:///dev/ttyUSB0, got {link!r}")
+    board = table.get("board")
+    board_path = station.resolve(get_str(table, "board", where)) if board is not None else None
+    key = None
+    if "key_file" in table:
+        path = station.resolve(get_str(table, "key_file", where))
+        try:
+            key = _read_key(path.read_text(), f"{where}.key_file")
+        except OSError as exc:
+            raise ConfigError(f"{where}.key_file", f"cannot read {path}: {exc.strerror}") from None
+    elif "key_env" in table:
+        name = get_str(table, "key_env", where)
+        if name not in os.environ:
+            raise ConfigError(f"{where}.key_env", f"environment variable {name} is not set")
+        key = _read_key(os.environ[name], f"{where}.key_env")
+    return Device(id=dev_id, link=link, board_config=board_path, key=key,
+                  timeout_s=get_float(table, "timeout_s", where, 1.0, minimum=0.01),
+                  retries=get_int(table, "retries", where, 2, minimum=0, maximum=20))
+
+
+def parse_devices(station: Station) -> list[Device]:
+    """All ``[[device]]`` entries; ids must be unique."""
+    devices = [parse_device(station, t, i) for i, t in enumerate(station.array("device"))]
+    seen: set[str] = set()
+    for d in devices:
+        if d.id in seen:
+            raise ConfigError("device.id", f"duplicate id {d.id!r}")
+        seen.add(d.id)
+    return devices
+
+
+def pick_device(devices: list[Device], wanted: str | None) -> Device:
+    """The device named ``wanted``, or the only one when ``wanted`` is None."""
+    if not devices:
+        raise ConfigError("device", "the station file has no [[device]] entry")
+    if wanted is None:
+        if len(devices) > 1:
+            raise ConfigError("--device", "several devices in the file: name one "
+                                          f"({', '.join(d.id for d in devices)})")
+        return devices[0]
+    for d in devices:
+        if d.id == wanted:
+            return d
+    raise ConfigError("--device", f"no device {wanted!r} (have {', '.join(d.id for d in devices)})")
