@@ -8,6 +8,30 @@ common practice.)
 
 from __future__ import annotations
 
+from enum import StrEnum
+
+from nullsteer.errors import ConfigError
+
+
+class FedEnd(StrEnum):
+    """Which corner of the loop feeds the receiver ("A" or "B" as the user labels them);
+    the other one is terminated."""
+
+    A = "A"
+    B = "B"
+
+    @property
+    def other(self) -> "FedEnd":
+        return FedEnd.B if self is FedEnd.A else FedEnd.A
+
+    @classmethod
+    def parse(cls, text: str, key: str = "--fed-end") -> "FedEnd":
+        """``text`` (any case) as a fed end; ConfigError naming ``key`` otherwise."""
+        try:
+            return cls(str(text).upper())
+        except ValueError:
+            raise ConfigError(key, f"must be A or B, got {text!r}") from None
+
 
 def wrap_deg(bearing_deg: float) -> float:
     """A bearing folded into 0 <= b < 360 degrees."""
@@ -20,7 +44,7 @@ def angle_between_deg(a_deg: float, b_deg: float) -> float:
     return min(d, 360.0 - d)
 
 
-def null_bearing_deg(fed_end: str, end_a_bearing_deg: float) -> float:
+def null_bearing_deg(fed_end: FedEnd | str, end_a_bearing_deg: float) -> float:
     """Where the null points when ``fed_end`` ("A" or "B") feeds the receiver."""
     if fed_end == "A":
         return wrap_deg(end_a_bearing_deg + 180.0)
@@ -29,11 +53,11 @@ def null_bearing_deg(fed_end: str, end_a_bearing_deg: float) -> float:
     raise ValueError(f"fed end must be 'A' or 'B', got {fed_end!r}")
 
 
-def fed_end_for_null(wanted_null_deg: float, end_a_bearing_deg: float) -> tuple[str, float]:
+def fed_end_for_null(wanted_null_deg: float, end_a_bearing_deg: float) -> tuple[FedEnd, float]:
     """The fed end whose null lies nearest ``wanted_null_deg``, and the miss in degrees.
 
     Ties (a wanted null exactly broadside) go to end A.
     """
-    miss_a = angle_between_deg(wanted_null_deg, null_bearing_deg("A", end_a_bearing_deg))
-    miss_b = angle_between_deg(wanted_null_deg, null_bearing_deg("B", end_a_bearing_deg))
-    return ("A", miss_a) if miss_a <= miss_b else ("B", miss_b)
+    miss_a = angle_between_deg(wanted_null_deg, null_bearing_deg(FedEnd.A, end_a_bearing_deg))
+    miss_b = angle_between_deg(wanted_null_deg, null_bearing_deg(FedEnd.B, end_a_bearing_deg))
+    return (FedEnd.A, miss_a) if miss_a <= miss_b else (FedEnd.B, miss_b)

@@ -10,31 +10,15 @@ import logging
 import time
 from collections.abc import Iterable
 from dataclasses import dataclass
-from enum import Enum
 
 from nullsteer import wire
+from nullsteer.bearing import FedEnd
 from nullsteer.errors import BoardError, ConfigError, LinkError
+
+__all__ = ["BoardInfo", "BoardState", "BoardStatus", "Controller", "FedEnd"]
 from nullsteer.links import Link
 
 log = logging.getLogger(__name__)
-
-
-class FedEnd(str, Enum):
-    """Which corner of the loop feeds the receiver; the other one is terminated."""
-
-    A = "A"
-    B = "B"
-
-    @property
-    def other(self) -> FedEnd:
-        return FedEnd.B if self is FedEnd.A else FedEnd.A
-
-    @classmethod
-    def parse(cls, text: str, key: str = "--fed-end") -> FedEnd:
-        try:
-            return cls(text.upper())
-        except ValueError:
-            raise ConfigError(key, f"must be A or B, got {text!r}") from None
 
 
 @dataclass(frozen=True)

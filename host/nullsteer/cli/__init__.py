@@ -23,6 +23,7 @@ COMMAND_MODULES = (
     "nullsteer.cli.model",
     "nullsteer.cli.ladder",
     "nullsteer.cli.sun",
+    "nullsteer.cli.schedule",
     "nullsteer.cli.service",
     "nullsteer.cli.autonull",
     "nullsteer.cli.noise",

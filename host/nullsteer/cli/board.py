@@ -136,7 +136,7 @@ def run_set(args: argparse.Namespace) -> int:
     if args.null_bearing is not None:
         end_a = end_a_bearing(args.config, "--null-bearing")
         end, miss = fed_end_for_null(args.null_bearing, end_a)
-        wanted_end = FedEnd(end)
+        wanted_end = end
         note = (f"null toward {args.null_bearing:.0f} deg: feeding end {end} "
                 f"(null at {null_bearing_deg(end, end_a):.0f} deg, {miss:.0f} deg off)")
     extra: dict = {}
