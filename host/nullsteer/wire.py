@@ -32,6 +32,8 @@ try:  # CPython and MicroPython both have these; MicroPython names may differ.
     import hashlib
 except ImportError:  # pragma: no cover
     import uhashlib as hashlib  # type: ignore
+import math
+
 try:
     import binascii
 except ImportError:  # pragma: no cover
@@ -400,25 +402,29 @@ def format_ohms(ohms):
     return "%.1f" % ohms
 
 
-def nearest_by_ratio(table, ohms):
-    """The entry of ``table`` ((mask, ohms) pairs) nearest to ``ohms`` by ratio.
 
-    "Nearest by ratio" minimises |ln(R / R_entry)|, so 450 Ω is as far from 900 Ω as
-    1800 Ω is. Returns ``(mask, entry_ohms, error_pct)`` with the signed error
+def nearest_index(table_ohms, ohms):
+    """Index of the entry of ``table_ohms`` (positive ohms) nearest ``ohms`` by ratio.
+
+    "Nearest by ratio" minimises |ln(R / R_k)|, so 450 Ω is as far from 900 Ω as 1800 Ω
+    is; the lower index wins a tie. ``table_ohms`` is a non-empty sequence, ``ohms`` > 0.
+    """
+    best = 0
+    best_d = abs(math.log(ohms / table_ohms[0]))
+    for k in range(1, len(table_ohms)):
+        d = abs(math.log(ohms / table_ohms[k]))
+        if d < best_d:
+            best, best_d = k, d
+    return best
+
+
+def nearest_by_ratio(table, ohms):
+    """The (mask, ohms) entry of ``table`` nearest ``ohms`` by ratio (see nearest_index).
+
+    Returns ``(mask, entry_ohms, error_pct)`` with the signed error
     ``100·(entry/ohms − 1)``; None for an empty table or ``ohms`` <= 0.
     """
     if ohms <= 0 or not table:
         return None
-    best = None
-    best_score = 0.0
-    for entry in table:
-        r = entry[1]
-        if r <= 0:
-            continue
-        score = r / ohms if r >= ohms else ohms / r
-        if best is None or score < best_score:
-            best = entry
-            best_score = score
-    if best is None:
-        return None
-    return (best[0], best[1], 100.0 * (best[1] / ohms - 1.0))
+    mask, r = table[nearest_index([row[1] for row in table], ohms)]
+    return (mask, r, 100.0 * (r / ohms - 1.0))

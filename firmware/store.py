@@ -1,0 +1,155 @@
+"""State persistence: the switching state and the boot count survive a power cut.
+
+The state file holds one protocol line (``NS1 0 EVT kind=state end= mask= open= boots=
+*CRC``), so the codec in ``wire.py`` checks its form and CRC: a torn or damaged file
+never decodes. Writing is atomic: write ``<path>.tmp``, flush, close, ``os.sync()`` if
+the port has it, then rename over ``<path>`` (the rename is the commit point). Where a
+file system refuses to rename over an existing file, the old file is removed first; a
+power cut in between leaves only the complete temporary file, which :meth:`load` then
+accepts.
+
+File access goes through a small ``fs`` object (``open``, ``rename``, ``remove``,
+``sync``) so tests can cut the power at any step.
+"""
+
+try:
+    from typing import TYPE_CHECKING
+except ImportError:  # MicroPython
+    TYPE_CHECKING = False
+if TYPE_CHECKING:
+    from typing import Any
+
+import wire
+from relays import ENDS, State
+
+
+class PosixFs:
+    """The real file system through ``open`` and ``os``."""
+
+    def __init__(self) -> None:
+        import os
+        self.os = os
+
+    def open(self, path: str, mode: str) -> "Any":
+        return open(path, mode)
+
+    def rename(self, old: str, new: str) -> None:
+        self.os.rename(old, new)
+
+    def remove(self, path: str) -> None:
+        self.os.remove(path)
+
+    def sync(self) -> None:
+        sync = getattr(self.os, "sync", None)
+        if sync is not None:
+            sync()
+
+
+def encode_state(state: State, boots: int) -> bytes:
+    """The state file's content for ``state`` after ``boots`` boots."""
+    return wire.encode(0, "EVT", (("kind", "state"), ("end", state.end), ("mask", state.mask),
+                                  ("open", state.open_), ("boots", boots)))
+
+
+def decode_state(data: bytes, bits: int, has_open: bool) -> "tuple[State, int]":
+    """Parse and check a state file's content; raises ``wire.WireError`` or ValueError."""
+    frame = wire.decode(data)
+    f = frame.fields
+    if frame.verb != "EVT" or f.get("kind") != "state":
+        raise ValueError("not a state record")
+    end = wire.field_choice(f, "end", ENDS)
+    mask = wire.field_int(f, "mask", 0, (1 << bits) - 1)
+    open_ = wire.field_bool(f, "open")
+    if open_ and not has_open:
+        raise ValueError("open state on a board without an open relay")
+    boots = wire.field_int(f, "boots", 0, 2 ** 30)
+    return State(end, mask, open_), boots
+
+
+class StateStore:
+    """Atomic save and checked load of the state file.
+
+    Parameters
+    ----------
+    path : str
+        State file path; ``path + ".tmp"`` is the temporary file.
+    bits : int
+        Number of ladder bits (masks beyond them are invalid).
+    has_open : bool
+        Whether the board has an open relay.
+    fs : object, optional
+        File access (default :class:`PosixFs`).
+    pause_ms : int
+        Test hook: write in 8-byte pieces and wait this long between steps, so a test can
+        cut the power in the middle of a write. 0 in service.
+    sleep_ms : callable, optional
+        Used with ``pause_ms``.
+    """
+
+    def __init__(self, path: str, bits: int, has_open: bool, fs: "Any" = None,
+                 pause_ms: int = 0, sleep_ms: "Any" = None) -> None:
+        self.path = path
+        self.tmp = path + ".tmp"
+        self.bits = bits
+        self.has_open = has_open
+        self.fs = fs if fs is not None else PosixFs()
+        self.pause_ms = pause_ms
+        self.sleep_ms = sleep_ms
+
+    def _pause(self) -> None:
+        if self.pause_ms and self.sleep_ms is not None:
+            self.sleep_ms(self.pause_ms)
+
+    def _read(self, path: str) -> "tuple[State, int] | None":
+        try:
+            f = self.fs.open(path, "rb")
+            try:
+                data = f.read(wire.MAX_LINE + 1)
+            finally:
+                f.close()
+            return decode_state(data, self.bits, self.has_open)
+        except (OSError, ValueError, wire.WireError):  # missing, unreadable, torn, invalid
+            return None
+
+    def load(self) -> "tuple[State | None, int]":
+        """Return (state or None, boots so far) from the committed file, else from a
+        complete temporary file; (None, 0) when neither is valid. Never raises."""
+        got = self._read(self.path)
+        if got is None:
+            got = self._read(self.tmp)
+        if got is None:
+            return None, 0
+        return got[0], got[1]
+
+    def discard_tmp(self) -> None:
+        """Remove a leftover temporary file (after :meth:`load`, at boot)."""
+        try:
+            self.fs.remove(self.tmp)
+        except OSError:
+            pass
+
+    def save(self, state: State, boots: int) -> None:
+        """Write the state atomically; raises OSError when the file system fails."""
+        data = encode_state(state, boots)
+        fs = self.fs
+        f = fs.open(self.tmp, "wb")
+        try:
+            if self.pause_ms:
+                for i in range(0, len(data), 8):
+                    f.write(data[i:i + 8])
+                    f.flush()
+                    self._pause()
+            else:
+                f.write(data)
+            f.flush()
+        finally:
+            f.close()
+        fs.sync()
+        self._pause()
+        try:
+            fs.rename(self.tmp, self.path)
+        except OSError:
+            fs.remove(self.path)
+            self._pause()
+            fs.rename(self.tmp, self.path)
+        fs.sync()
