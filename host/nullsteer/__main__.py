@@ -1,0 +1,5 @@
+"""``python -m nullsteer`` runs the command line."""
+
+from nullsteer.cli import main
+
+raise SystemExit(main())
