@@ -5,7 +5,6 @@ rules checked here are named beside each check.
 """
 
 import json
-import math
 import os
 from pathlib import Path
 

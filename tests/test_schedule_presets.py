@@ -14,7 +14,8 @@ import pytest
 
 from nullsteer.config import Station, load_station
 from nullsteer.errors import ConfigError
-from nullsteer.presets import (End, Target, fed_end_for_null, null_bearing_deg, parse_presets,
+from nullsteer.bearing import fed_end_for_null, null_bearing_deg
+from nullsteer.presets import (End, Target, parse_presets,
                                resolve_target)
 
 EXAMPLE = Path(__file__).resolve().parents[1] / "examples" / "station.toml"

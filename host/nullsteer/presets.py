@@ -42,7 +42,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from nullsteer.bearing import FedEnd as End
-from nullsteer.bearing import fed_end_for_null, null_bearing_deg
+from nullsteer.bearing import fed_end_for_null
 from nullsteer.config import Station, check_unknown, get_bool, get_float, get_str
 from nullsteer.errors import ConfigError
 

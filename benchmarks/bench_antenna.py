@@ -1,0 +1,118 @@
+"""Antenna model performance: port reduction, matrix fill vs LU, full sweep.
+
+Plain script; prints figures and ratios side by side (goals in brackets), asserts nothing.
+Run: .venv/bin/python benchmarks/bench_antenna.py
+"""
+
+from __future__ import annotations
+
+import time
+
+import numpy as np
+
+from nullsteer.antenna.geometry import FedEnd, mesh_from_pieces
+from nullsteer.antenna.mom import MomOperator, port_excitation
+from nullsteer.antenna.ports import LoopModel
+from nullsteer.antenna.specs import parse_antenna, parse_ground
+
+FLAG = dict(shape="rectangle", length_m=8.84, height_m=6.1, bottom_m=1.83,
+            wire_diameter_mm=1.63, end_a_bearing_deg=65.0)
+
+
+def best_of(fn, repeat=5):
+    times = []
+    for _ in range(repeat):
+        t = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t)
+    return min(times)
+
+
+def port_reduction():
+    model = LoopModel(parse_antenna(FLAG), parse_ground({"kind": "real"}))
+    terms = np.geomspace(100.0, 10000.0, 256)
+    sol = model.solve([1.83e6])
+    mesh = sol.mesh
+    op = MomOperator(mesh, True)
+    from nullsteer.antenna.ground import image_depth_shift_m, quasi_static_image_coefficient
+    g = model.ground
+    pa, pb = mesh.ports[FedEnd.A], mesh.ports[FedEnd.B]
+
+    def naive():
+        z = op.matrix(1.83e6, image_depth_shift_m(g, 1.83e6),
+                      quasi_static_image_coefficient(g, 1.83e6))
+        v = np.zeros(mesh.n_unknowns, complex)
+        v[pa] = 1
+        out = []
+        for r in terms:   # re-solve with the load in the matrix, as without the 2-port trick
+            zl = z.copy()
+            zl[pb, pb] += r
+            out.append(1 / np.linalg.solve(zl, v)[pa])
+        return out
+
+    z0 = op.matrix(1.83e6, image_depth_shift_m(g, 1.83e6),
+                   quasi_static_image_coefficient(g, 1.83e6))
+    rhs = port_excitation(mesh.n_unknowns, [pa, pb])
+
+    def reduced():   # same filled matrix: one solve with two right-hand sides + algebra
+        cur = np.linalg.solve(z0, rhs)
+        y = cur[[pa, pb], :]
+        yt = 1.0 / terms
+        return 1.0 / (y[0, 0] - y[0, 1] * y[1, 0] / (y[1, 1] + yt))
+
+    t_fill = best_of(lambda: op.matrix(1.83e6, image_depth_shift_m(g, 1.83e6),
+                                       quasi_static_image_coefficient(g, 1.83e6)), 5)
+    t_naive, t_red = best_of(naive, 3), best_of(reduced, 20)
+    t_naive_solves = t_naive - t_fill
+    print(f"port reduction, 256 terminations ({mesh.n_unknowns} unknowns): 256 loaded "
+          f"solves {t_naive_solves * 1e3:.2f} ms vs one 2-RHS solve + algebra "
+          f"{t_red * 1e3:.3f} ms, ratio {t_naive_solves / t_red:.0f}x  [goal >= 100x]")
+    print(f"  including the matrix fill ({t_fill * 1e3:.2f} ms) on both sides: ratio "
+          f"{t_naive / (t_fill + t_red):.1f}x; the 2-port API call after solve(): "
+          f"{best_of(lambda: sol.feed_impedance_ohm(terms[None, :], 'A'), 20) * 1e6:.0f} us")
+
+
+def fill_vs_lu(n_target=400):
+    sides = 8
+    pts = [np.array([6 * np.cos(t), 6 * np.sin(t), 0.0])
+           for t in 2 * np.pi * np.arange(sides) / sides]
+    pieces = [(pts[i], pts[(i + 1) % sides]) for i in range(sides)]
+    mesh = mesh_from_pieces(pieces, 1e-3, {"p": pts[0]}, False, 30e6, fixed=n_target // sides)
+    op = MomOperator(mesh, False)
+    z = op.matrix(10e6)
+    rhs = port_excitation(mesh.n_unknowns, [0, 1])
+    t_fill = best_of(lambda: op.matrix(10e6))
+    t_lu = best_of(lambda: np.linalg.solve(z, rhs))
+    print(f"matrix fill vs LU at {mesh.n_unknowns} unknowns: fill {t_fill * 1e3:.1f} ms, "
+          f"LU+solve {t_lu * 1e3:.1f} ms, ratio {t_fill / t_lu:.2f}  [goal <= 2]")
+    op_g = MomOperator(mesh, True)
+    t_fill_g = best_of(lambda: op_g.matrix(10e6, 3.0 - 3.0j, 0.9 - 0.1j), 3)
+    print(f"  same over real ground (two image sets): fill {t_fill_g * 1e3:.1f} ms")
+
+
+def full_sweep():
+    model = LoopModel(parse_antenna(FLAG), parse_ground({"kind": "real"}))
+    freqs = np.linspace(1.8e6, 2.0e6, 60)
+    terms = np.geomspace(100.0, 10000.0, 256)[None, :]
+    az = np.arange(0.0, 360.0, 1.0)
+    el = np.array([10.0, 30.0, 60.0])
+
+    def sweep():
+        sol = model.solve(freqs)
+        out = []
+        for fe in (FedEnd.A, FedEnd.B):
+            out.append(sol.gain_dbi(terms, fe, az[None, :], el[:, None]))
+            out.append(sol.rdf_db(terms, fe))
+        return out
+
+    t = best_of(sweep, 3)
+    print(f"full sweep 60 f x 2 ends x 256 R x 360 az x 3 el + RDF: {t:.2f} s  "
+          f"[goal <= 1.5 s]")
+    t_solve = best_of(lambda: model.solve(freqs), 3)
+    print(f"  of which 60 MoM solves: {t_solve:.3f} s")
+
+
+if __name__ == "__main__":
+    port_reduction()
+    fill_vs_lu()
+    full_sweep()

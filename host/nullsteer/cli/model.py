@@ -1,0 +1,176 @@
+"""``nullsteer model``: optimum termination, F/B, feed impedance and RDF of a loop.
+
+Either from a station file (``--config station.toml``: sections [antenna], [ground],
+[band], [feed]) or from a quick description on the command line (``--length --height
+--bottom --wire-mm --ground --sigma --eps``). ``--freq`` and ``--elevation`` override the
+band. With one elevation, ``r_opt_ohm`` maximises F/B there; with a span it maximises the
+ratio of the forward to the backward power summed over the span's elevations.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+import numpy as np
+
+from nullsteer.bearing import FedEnd, null_bearing_deg
+from nullsteer.antenna.metrics import null_of, azimuth_pattern
+from nullsteer.antenna.needed import needed_range
+from nullsteer.antenna.ports import LoopModel
+from nullsteer.antenna.specs import (BandSpec, parse_antenna, parse_band,
+                                     parse_elevations_deg, parse_feed, parse_ground)
+from nullsteer.cli.common import add_json_flag, print_json
+from nullsteer.config import load_station, parse_freqs_mhz
+from nullsteer.errors import ConfigError
+
+_QUICK = ("length", "height", "bottom", "wire_mm", "ground", "sigma", "eps", "bearing")
+
+
+def register(subparsers) -> None:
+    p = subparsers.add_parser("model", help="model the loop: optimum termination, F/B, RDF",
+                              description=__doc__.splitlines()[0])
+    p.add_argument("--config", help="station TOML file")
+    p.add_argument("--length", type=float, help="loop length, m (quick form)")
+    p.add_argument("--height", type=float, help="top wire height, m")
+    p.add_argument("--bottom", type=float, help="bottom wire height, m")
+    p.add_argument("--wire-mm", dest="wire_mm", type=float, help="wire diameter, mm")
+    p.add_argument("--ground", choices=("perfect", "free", "real"))
+    p.add_argument("--sigma", type=float, help="ground conductivity, S/m (real ground)")
+    p.add_argument("--eps", type=float, help="ground relative permittivity (real ground)")
+    p.add_argument("--bearing", type=float, help="compass bearing toward end A, degrees")
+    p.add_argument("--freq", help="MHz, or start:stop:step")
+    p.add_argument("--elevation", help="degrees, or lo:hi[:step] span")
+    p.add_argument("--fed-end", dest="fed_end", choices=("A", "B"), default="A")
+    add_json_flag(p)
+    p.set_defaults(func=run)
+
+
+def _quick_specs(args):
+    if args.length is None:
+        raise ConfigError("--length", "is required without --config")
+    table = {"shape": "rectangle", "length_m": args.length,
+             "height_m": args.height if args.height is not None else 6.0,
+             "bottom_m": args.bottom if args.bottom is not None else 1.8,
+             "wire_diameter_mm": args.wire_mm if args.wire_mm is not None else 1.6,
+             "end_a_bearing_deg": args.bearing if args.bearing is not None else 0.0}
+    flags = {"length_m": "--length", "height_m": "--height", "bottom_m": "--bottom",
+             "wire_diameter_mm": "--wire-mm", "end_a_bearing_deg": "--bearing"}
+    try:
+        antenna = parse_antenna(table)
+    except ConfigError as exc:
+        raise ConfigError(flags.get(exc.key.split(".")[-1], exc.key), exc.message) from None
+    g = {"kind": args.ground or "real"}
+    if args.sigma is not None:
+        g["conductivity_s_per_m"] = args.sigma
+    if args.eps is not None:
+        g["permittivity"] = args.eps
+    try:
+        ground = parse_ground(g)
+    except ConfigError as exc:
+        key = {"ground.conductivity_s_per_m": "--sigma", "ground.permittivity": "--eps"}
+        raise ConfigError(key.get(exc.key, "--ground"), exc.message) from None
+    band = BandSpec(freqs_hz=(1.83e6,), elevations_deg=parse_elevations_deg(
+        [10.0, 60.0], "--elevation"))
+    return antenna, ground, band, parse_feed({})
+
+
+def load_specs(args):
+    """(antenna, ground, band, feed) from ``--config`` or the quick flags, with overrides."""
+    if args.config:
+        for name in _QUICK:
+            if getattr(args, name) is not None:
+                flag = "--" + name.replace("_", "-")
+                raise ConfigError(flag, "cannot be combined with --config")
+        st = load_station(args.config)
+        antenna = parse_antenna(st.section("antenna", required=True))
+        ground = parse_ground(st.section("ground"))
+        band_t = st.section("band")
+        band = parse_band(band_t) if "freqs_mhz" in band_t else BandSpec(
+            (1.83e6,), parse_elevations_deg(band_t.get("elevation_deg", [10.0, 60.0]),
+                                            "band.elevation_deg"))
+        feed = parse_feed(st.section("feed"))
+    else:
+        antenna, ground, band, feed = _quick_specs(args)
+    freqs = band.freqs_hz
+    els = band.elevations_deg
+    if args.freq is not None:
+        freqs = tuple(f * 1e6 for f in parse_freqs_mhz(args.freq, "--freq"))
+    if args.elevation is not None:
+        els = parse_elevations_deg(args.elevation, "--elevation")
+    if len(freqs) > 2000:
+        raise ConfigError("--freq", f"{len(freqs)} frequencies is too many (at most 2000)")
+    return antenna, ground, BandSpec(freqs_hz=freqs, elevations_deg=els), feed
+
+
+def compute(antenna, ground, band, feed, fed_end: FedEnd) -> dict:
+    """The JSON report of ``nullsteer model`` (also used by the human table)."""
+    sol = LoopModel(antenna, ground, feed).solve(np.array(band.freqs_hz))
+    els = np.array(band.elevations_deg)
+    r_opt = sol.optimum_termination_ohm(fed_end, els)
+    r_each = sol.optimum_termination_ohm(fed_end, els, each=True)
+    fb_each = np.stack([sol.fb_db(r_each[:, j], fed_end, e) for j, e in enumerate(els)], 1)
+    front, back = sol.axis_bearings_deg(fed_end)
+    gf = sol.gain(r_opt, fed_end, front, els).sum(-1)
+    gb = sol.gain(r_opt, fed_end, back, els).sum(-1)
+    fb_span = 10 * np.log10(gf / np.maximum(gb, 1e-300))
+    zfeed = sol.feed_impedance_ohm(r_opt, fed_end)
+    rdf = sol.rdf_db(r_opt, fed_end)
+    mid_el = float(els[len(els) // 2])
+    az, pat = azimuth_pattern(sol, r_opt, fed_end, mid_el)
+    null = null_of(az, pat[:, 0])
+    gain_front = sol.gain_dbi(r_opt, fed_end, front, mid_el)
+    realized = sol.gain_dbi(r_opt, fed_end, front, mid_el, realized=True)
+    loss = sol.termination_loss_fraction(r_opt, fed_end)
+    nr = needed_range(sol, tuple(els) if len(els) > 2 else (els.min(), els.max()),
+                      fed_ends=(FedEnd.A, FedEnd.B))
+    rows = []
+    for i, f in enumerate(sol.freqs_hz):
+        rows.append({
+            "freq_mhz": f / 1e6, "r_opt_ohm": float(r_opt[i]), "fb_db": float(fb_span[i]),
+            "feed_impedance_ohm": [float(zfeed[i].real), float(zfeed[i].imag)],
+            "rdf_db": float(rdf[i]), "gain_front_dbi": float(gain_front[i]),
+            "realized_gain_front_dbi": float(realized[i]),
+            "termination_loss_pct": float(100 * loss[i]),
+            "null_bearing_deg": float(null.bearing_deg[i]),
+            "null_depth_db": float(null.depth_db[i]),
+            "by_elevation": [{"elevation_deg": float(e), "r_opt_ohm": float(r_each[i, j]),
+                              "fb_db_at_r_opt": float(fb_each[i, j])}
+                             for j, e in enumerate(els)]})
+    return {"fed_end": fed_end.value, "null_toward_deg": null_bearing_deg(
+                fed_end, antenna.end_a_bearing_deg),
+            "elevations_deg": [float(e) for e in els], "pattern_elevation_deg": mid_el,
+            "segments": sol.mesh.n_segments, "unknowns": sol.mesh.n_unknowns,
+            "frequencies": rows, "needed_range_ohm": [nr.lo_ohm, nr.hi_ohm],
+            "fb_loss_db_per_pct": nr.fb_loss_db_per_pct,
+            "loss_curve_db": {f"{k:g}": v for k, v in nr.loss_curve_db.items()},
+            "warnings": list(sol.warnings)}
+
+
+def _print_table(rep: dict) -> None:
+    els = rep["elevations_deg"]
+    span = f"{els[0]:g}°" if len(els) == 1 else f"{els[0]:g}–{els[-1]:g}°"
+    print(f"fed end {rep['fed_end']}, null toward {rep['null_toward_deg']:.0f}°, "
+          f"elevation {span}, {rep['unknowns']} unknowns")
+    print(f"{'MHz':>8} {'R_opt Ω':>9} {'F/B dB':>7} {'Zfeed Ω':>18} {'RDF dB':>7} "
+          f"{'G dBi':>7} {'null °':>7} {'depth dB':>8}")
+    for r in rep["frequencies"]:
+        z = r["feed_impedance_ohm"]
+        print(f"{r['freq_mhz']:8.3f} {r['r_opt_ohm']:9.0f} {r['fb_db']:7.1f} "
+              f"{z[0]:8.0f}{z[1]:+9.0f}j {r['rdf_db']:7.2f} {r['gain_front_dbi']:7.1f} "
+              f"{r['null_bearing_deg']:7.0f} {r['null_depth_db']:8.1f}")
+    lo, hi = rep["needed_range_ohm"]
+    print(f"needed termination range (both fed ends, all elevations): {lo:.0f}–{hi:.0f} Ω; "
+          f"F/B lost ≈ {rep['fb_loss_db_per_pct']:.2f} dB per % of error")
+    for w in rep["warnings"]:
+        print(f"warning: {w}", file=sys.stderr)
+
+
+def run(args: argparse.Namespace) -> int:
+    antenna, ground, band, feed = load_specs(args)
+    rep = compute(antenna, ground, band, feed, FedEnd(args.fed_end))
+    if args.json:
+        print_json(rep)
+    else:
+        _print_table(rep)
+    return 0
