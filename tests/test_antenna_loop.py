@@ -169,3 +169,24 @@ def test_termination_burns_power_and_received_level():
     assert p == pytest.approx(1e-6 / 376.730313668 * lam ** 2 / (4 * np.pi) * gv, rel=1e-9)
     assert image_depth_shift_m(parse_ground({"kind": "perfect"}), 1e6) == 0
     assert quasi_static_image_coefficient(parse_ground({"kind": "perfect"}), 1e6) == 1
+
+
+@pytest.mark.parametrize("termination", [np.inf, 0.0, 950.0, 600.0 + 200.0j])
+def test_average_gain_conserves_power_over_perfect_ground(termination):
+    # Conservation of energy (REFERENCES.md): over perfect ground with lossless wire,
+    # the power accepted at the feed is either radiated into the upper half space or
+    # burned in the termination, so the average gain (∫upper G dΩ / 4π) equals
+    # 1 − (termination's share). This pins the RDF normalisation as well.
+    sol = flag("perfect").solve([1.83e6, 3.6e6])
+    avg = sol.average_gain(termination, "A")
+    burned = sol.termination_loss_fraction(termination, "A")
+    assert np.allclose(avg, 1.0 - burned, rtol=2e-3, atol=2e-4)
+
+
+def test_rdf_is_peak_over_average_gain():
+    # NCVEC E9H03 (RDF = peak gain compared with average gain over the hemisphere).
+    sol = flag("real").solve([1.83e6])
+    el = np.arange(1.0, 91.0)
+    peak = np.max(sol.gain(950.0, "A", np.full(el.shape, 65.0), el))
+    assert sol.rdf_db(950.0, "A")[0] == pytest.approx(
+        10 * np.log10(peak / sol.average_gain(950.0, "A")[0]), abs=1e-9)

@@ -373,9 +373,7 @@ def loop_noise_efficiency_db(solution: Any, termination_ohm: complex, fed_end: s
 
     eta = (1/4 pi) * integral of G over the upper hemisphere: the fraction of isotropic
     sky noise delivered to the feed (a lossless antenna over perfect ground gives 1,
-    as the monopole that defines P.372's Fa). It is computed from the antenna model's
-    public metrics: the upper-hemisphere average gain is the forward peak gain over the
-    RDF (the model's documented normalisation), and eta is half of it (2 pi of 4 pi sr).
+    as the monopole that defines P.372's Fa): the model's ``average_gain``.
 
     Parameters
     ----------
@@ -396,12 +394,7 @@ def loop_noise_efficiency_db(solution: Any, termination_ohm: complex, fed_end: s
 
     from nullsteer.antenna.ports import transducer_gain
 
-    front, _ = solution.axis_bearings_deg(fed_end)
-    el = np.arange(1.0, 91.0)
-    peak = float(np.max(solution.gain(termination_ohm, fed_end, np.full(el.shape, front), el,
-                                      freq_index=freq_index)))
-    rdf = float(np.ravel(solution.rdf_db(termination_ohm, fed_end, freq_index=freq_index))[0])
-    eta = peak / db_to_ratio(rdf) / 2.0
+    eta = float(np.ravel(solution.average_gain(termination_ohm, fed_end, freq_index=freq_index))[0])
     if feed is not None:
         z = solution.feed_impedance_ohm(termination_ohm, fed_end, freq_index=freq_index)
         f = solution.freqs_hz[freq_index]

@@ -273,27 +273,42 @@ class PortSolution:
             self._cache[key] = np.einsum("fcid,fcjd,d->fij", pf, np.conj(pf), w)
         return self._cache[key][self._sel(freq_index)]
 
-    def rdf_db(self, termination_ohm, fed_end, freq_index=None) -> np.ndarray:
-        """Receiving directivity factor, dB, (F', *T).
+    def average_gain(self, termination_ohm, fed_end, freq_index=None) -> np.ndarray:
+        """Average gain, linear, (F', *T): ∫ G dΩ over the upper hemisphere divided by 4π.
 
-        Normalisation: the peak gain along the forward axis (toward the fed end, over
-        elevations 1..90° in 1° steps) over the gain averaged over the upper hemisphere
-        (solid-angle weighted, total polarisation); NCVEC E9H03 "peak gain minus average
-        gain" with the average taken over the hemisphere the noise arrives from.
+        This is the normalisation modelling programs report as "average gain": the
+        fraction of the power accepted at the feed that is radiated into the upper half
+        space, so a lossless antenna over perfect ground gives exactly 1 and every loss
+        (termination, wire, real ground) lowers it. It is also the share of isotropic
+        sky noise the loop delivers to its feed (ITU-R P.372 defines Fa at a lossless
+        short monopole over perfect ground, whose average gain is 1).
         """
         fe = as_fed_end(fed_end)
         sel = self._sel(freq_index)
-        vt, _ = self._term(termination_ohm, fe, sel)
+        vt, y_in = self._term(termination_ohm, fe, sel)
         f_i, t_i = _IDX[fe]
+        gram = self._hemisphere_gram(freq_index)
+        g = gram.reshape(gram.shape[:1] + (1,) * (vt.ndim - 1) + (2, 2))
+        scale = ff.gain_factor(self.freqs_hz[sel]).reshape((-1,) + (1,) * (vt.ndim - 1)) / (
+            0.5 * np.real(y_in))
+        return scale * (g[..., f_i, f_i] + 2 * np.real(np.conj(vt) * g[..., f_i, t_i])
+                        + np.abs(vt) ** 2 * g[..., t_i, t_i]).real / (4 * np.pi)
+
+    def rdf_db(self, termination_ohm, fed_end, freq_index=None) -> np.ndarray:
+        """Receiving directivity factor, dB, (F', *T).
+
+        NCVEC E9H03: peak gain compared with the average gain over the hemisphere. The
+        peak is taken along the forward axis (toward the fed end, elevations 1..90° in
+        1° steps); the average is :meth:`average_gain` (upper hemisphere over 4π, the
+        convention of the "average gain" that modelling programs report and in which
+        published RDF figures of receiving antennas are quoted: a lossless short
+        vertical over perfect ground has RDF = 4.77 dB).
+        """
+        fe = as_fed_end(fed_end)
         front, _ = self.axis_bearings_deg(fe)
         el = np.arange(1.0, 91.0)
-        pf = self.port_fields(np.full(el.shape, front), el, freq_index)[:, :, [f_i, t_i]]
-        peak = self._field(vt, pf, "total").max(axis=-1)
-        gram = self._hemisphere_gram(freq_index)
-        nd = vt.ndim - 1
-        g = gram.reshape(gram.shape[:1] + (1,) * nd + (2, 2))
-        avg = (g[..., f_i, f_i] + 2 * np.real(np.conj(vt) * g[..., f_i, t_i]) + np.abs(vt) ** 2
-               * g[..., t_i, t_i]).real / (2 * np.pi)
+        peak = self.gain(termination_ohm, fe, np.full(el.shape, front), el, freq_index).max(axis=-1)
+        avg = self.average_gain(termination_ohm, fe, freq_index)
         return 10.0 * np.log10(np.maximum(peak, 1e-300) / np.maximum(avg, 1e-300))
 
     # -- virtual receiver ---------------------------------------------------------------
