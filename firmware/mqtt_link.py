@@ -1,0 +1,582 @@
+"""The board as an MQTT device: host frames, hub commands, availability, retained state.
+
+Topics (``T`` = ``<base>/<device id>/``, base default ``nullsteer``):
+
+==================== ========= ================================================= ======
+topic                direction payload                                           retain
+==================== ========= ================================================= ======
+``T avail``          out       ``online`` (birth) / ``offline`` (last will)      yes
+``T req``            in        one protocol request line (as on the serial link) no
+``T rep``            out       the reply line                                    no
+``T state``          out       JSON ``{"end","mask","open","ohms","preset"}``    yes
+``T end``            out       the fed end's label (``A``/``B`` or configured)   yes
+``T ohms``           out       the termination in ohms, ``%.1f``                 yes
+``T open``           out       ``ON`` (termination disconnected) / ``OFF``       yes
+``T preset``         out       the preset matching the state, or ``custom``      yes
+``T end/set``        in        ``A``/``B`` or an end label                       no
+``T bearing/set``    in        wanted null bearing in degrees (nearest end)      no
+``T ohms/set``       in        ohms (nearest ladder setting by ratio; closes)    no
+``T open/set``       in        ``ON``/``OFF``                                    no
+``T preset/set``     in        a preset name from the board config               no
+``T log``            out       one line of text per refused hub command          no
+``<prefix>/status``  in        the hub's birth ``online``: republish discovery   --
+==================== ========= ================================================= ======
+
+Everything that moves a relay goes through ``App.handle_line`` (hub commands are turned
+into ``SET`` frames), so the same checks apply and a refused command moves nothing.
+Messages arriving with the retain flag on command topics are ignored: a stale retained
+command must not move the antenna at every reconnect.
+
+Security: only ``T req`` carries host frames (the board subscribes to its own topics
+only). With a ``key_hex`` in the config every host frame must be signed
+(``wire.sign``: HMAC-SHA256 over the frame with ``ts``); the board refuses unsigned or
+wrongly signed frames (``ERR AUTH``) and replays (``ERR REPLAY``): a frame must be newer
+than the last accepted one (by ``ts``, then ``seq``), and, once the board clock is set,
+within ``window_s`` of it. An exact repeat of one of the last few accepted frames (a host
+retry after a lost reply) gets the cached reply again and moves nothing. Hub commands
+cannot be signed: they are off by default when a key is set (``"hub": true`` turns them
+on; then protect the ``T .../set`` topics with the broker's ACL).
+
+Discovery (decided: the board publishes it). The board has its ladder table, its presets
+and its state, so a home-automation hub that follows the MQTT discovery convention sees
+and drives the antenna with the host switched off. Configs are published retained after
+every connect and again when the hub announces ``online`` on ``<prefix>/status``.
+"""
+
+try:
+    from typing import TYPE_CHECKING
+except ImportError:  # MicroPython
+    TYPE_CHECKING = False
+if TYPE_CHECKING:
+    from typing import Any
+
+import json
+import time
+
+import wire
+from boardcfg import BoardConfigError
+from link_serial import LineAssembler
+from mqtt_client import MQTTClient
+
+MQTT_KEYS = ("host", "port", "user", "password", "tls", "ca_file", "server_hostname",
+             "base", "id", "keepalive_s", "discovery", "discovery_prefix", "name",
+             "key_hex", "window_s", "hub", "end_labels", "end_a_bearing_deg", "presets",
+             "wifi", "backoff_s", "backoff_max_s", "log")
+PRESET_KEYS = ("end", "mask", "ohms", "open")
+HUB_TOPICS = ("end", "bearing", "ohms", "open", "preset")
+CUSTOM = "custom"
+CLOCK_SET_S = 1600000000  # a unix time below this means the board clock is not set
+REPLY_CACHE = 4
+
+
+def _opt_str(obj: dict, key: str, default: "str | None") -> "str | None":
+    value = obj.get(key, default)
+    if value is not None and (not isinstance(value, str) or not value):
+        raise BoardConfigError("mqtt." + key, "must be a non-empty string")
+    return value
+
+
+def _num(obj: dict, key: str, default: float, lo: float, hi: float) -> float:
+    value = obj.get(key, default)
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not lo <= value <= hi:
+        raise BoardConfigError("mqtt." + key, "must be a number in %s..%s" % (lo, hi))
+    return value
+
+
+def _topic_word(value: str, key: str) -> str:
+    for ch in value:
+        if ch in "+#/ " or ord(ch) < 0x21 or ord(ch) > 0x7E:
+            raise BoardConfigError(key, "must not contain + # / or spaces: %r" % (value,))
+    return value
+
+
+def parse_presets(obj: object, bits: int) -> dict:
+    """name -> {"end": "A"|"B"|None, "mask": int|None, "ohms": float|None, "open": bool}."""
+    if obj is None:
+        return {}
+    if not isinstance(obj, dict):
+        raise BoardConfigError("mqtt.presets", "must be an object of presets")
+    out = {}
+    for name in obj:
+        p = obj[name]
+        where = "mqtt.presets." + name
+        _topic_word(name, where)
+        if name == CUSTOM or not isinstance(p, dict):
+            raise BoardConfigError(where, "must be an object (and not named custom)")
+        for key in p:
+            if key not in PRESET_KEYS:
+                raise BoardConfigError(where + "." + key, "unknown key")
+        end = p.get("end")
+        if end is not None and end not in ("A", "B"):
+            raise BoardConfigError(where + ".end", "must be A or B")
+        mask = p.get("mask")
+        if mask is not None and (isinstance(mask, bool) or not isinstance(mask, int)
+                                 or not 0 <= mask < (1 << bits)):
+            raise BoardConfigError(where + ".mask", "outside the %d ladder bits" % bits)
+        ohms = p.get("ohms")
+        if ohms is not None and (isinstance(ohms, bool) or not isinstance(ohms, (int, float))
+                                 or not ohms > 0):
+            raise BoardConfigError(where + ".ohms", "must be > 0")
+        if mask is not None and ohms is not None:
+            raise BoardConfigError(where, "give mask or ohms, not both")
+        open_ = p.get("open", False)
+        if not isinstance(open_, bool):
+            raise BoardConfigError(where + ".open", "must be true or false")
+        out[name] = {"end": end, "mask": mask, "ohms": None if ohms is None else float(ohms),
+                     "open": open_}
+    return out
+
+
+def parse_mqtt(obj: object, bits: int = 16) -> dict:
+    """Check the board config's ``"mqtt"`` block; returns it with defaults filled in."""
+    if not isinstance(obj, dict):
+        raise BoardConfigError("mqtt", "must be an object")
+    for key in obj:
+        if key not in MQTT_KEYS:
+            raise BoardConfigError("mqtt." + key, "unknown key")
+    m = {}  # type: dict
+    m["host"] = _opt_str(obj, "host", None)
+    if m["host"] is None:
+        raise BoardConfigError("mqtt.host", "missing (broker host name or address)")
+    tls = obj.get("tls", False)
+    if not isinstance(tls, bool):
+        raise BoardConfigError("mqtt.tls", "must be true or false")
+    m["tls"] = tls
+    m["port"] = int(_num(obj, "port", 8883 if tls else 1883, 1, 65535))
+    for key in ("user", "password", "ca_file", "server_hostname", "key_hex", "name"):
+        m[key] = _opt_str(obj, key, None)
+    m["base"] = _opt_str(obj, "base", "nullsteer")
+    for part in m["base"].split("/"):
+        _topic_word(part, "mqtt.base")
+    m["id"] = _topic_word(_opt_str(obj, "id", None) or "", "mqtt.id")
+    if not m["id"]:
+        raise BoardConfigError("mqtt.id", "missing (the device id of the station file)")
+    m["keepalive_s"] = int(_num(obj, "keepalive_s", 30, 5, 3600))
+    m["discovery_prefix"] = _opt_str(obj, "discovery_prefix", "homeassistant")
+    m["key"] = None
+    if m["key_hex"] is not None:
+        try:
+            import binascii
+            m["key"] = binascii.unhexlify(m["key_hex"])
+        except ValueError:
+            raise BoardConfigError("mqtt.key_hex", "must be hex digits")
+        if len(m["key"]) < 16:
+            raise BoardConfigError("mqtt.key_hex", "key must be at least 16 bytes")
+    m["window_s"] = int(_num(obj, "window_s", 120, 1, 86400))
+    hub = obj.get("hub", m["key"] is None)
+    disc = obj.get("discovery", True)
+    log = obj.get("log", False)
+    for key, value in (("hub", hub), ("discovery", disc), ("log", log)):
+        if not isinstance(value, bool):
+            raise BoardConfigError("mqtt." + key, "must be true or false")
+    m["hub"], m["discovery"], m["log"] = hub, disc and hub, log
+    labels = obj.get("end_labels", {})
+    if not isinstance(labels, dict):
+        raise BoardConfigError("mqtt.end_labels", "must be an object {A: ..., B: ...}")
+    m["bearing"] = obj.get("end_a_bearing_deg")
+    if m["bearing"] is not None:
+        _num(obj, "end_a_bearing_deg", 0, -360, 360)
+    m["labels"] = {}
+    for end in ("A", "B"):
+        default = end
+        if m["bearing"] is not None:
+            default = "%s (null %d deg)" % (end, round(null_bearing(end, m["bearing"])))
+        m["labels"][end] = _opt_str(labels, end, default)
+    m["presets"] = parse_presets(obj.get("presets"), bits)
+    wifi = obj.get("wifi")
+    if wifi is not None and (not isinstance(wifi, dict) or "ssid" not in wifi):
+        raise BoardConfigError("mqtt.wifi", "must be an object with ssid (and password)")
+    m["wifi"] = wifi
+    m["backoff_s"] = _num(obj, "backoff_s", 0.25, 0.01, 60)
+    m["backoff_max_s"] = _num(obj, "backoff_max_s", 4.0, m["backoff_s"], 3600)
+    return m
+
+
+def null_bearing(end: str, end_a_bearing_deg: float) -> float:
+    """Where the null points with ``end`` fed (toward the terminated end), degrees."""
+    return (end_a_bearing_deg + (180.0 if end == "A" else 0.0)) % 360.0
+
+
+def end_for_bearing(wanted_deg: float, end_a_bearing_deg: float) -> str:
+    """The fed end whose null lies nearest ``wanted_deg`` (ties go to A)."""
+    miss = {}
+    for end in ("A", "B"):
+        d = abs(null_bearing(end, end_a_bearing_deg) - wanted_deg % 360.0)
+        miss[end] = min(d, 360.0 - d)
+    return "A" if miss["A"] <= miss["B"] else "B"
+
+
+class ReplayGuard:
+    """Accepts each signed frame once, in order (``ts`` then ``seq``), within a window.
+
+    Parameters
+    ----------
+    window_s : int
+        Largest accepted |ts - board time| in seconds once the board clock is set.
+    now_s : callable
+        Unix time in seconds (``time.time``).
+    """
+
+    def __init__(self, window_s: int, now_s: "Any") -> None:
+        self.window_s = window_s
+        self.now_s = now_s
+        self.last_ts = -1
+        self.seqs_at_last = []  # type: list[int]
+
+    def check(self, ts: int, seq: int) -> "str | None":
+        """None if (ts, seq) may be accepted (and records it), else the reason."""
+        now = int(self.now_s())
+        if now >= CLOCK_SET_S and abs(ts - now) > self.window_s:
+            return "ts %d is %d s away from board time" % (ts, ts - now)
+        if ts < self.last_ts or (ts == self.last_ts and seq in self.seqs_at_last):
+            return "frame is not newer than the last accepted one"
+        if ts > self.last_ts:
+            self.last_ts = ts
+            self.seqs_at_last = []
+        self.seqs_at_last.append(seq)
+        if len(self.seqs_at_last) > 32:
+            self.seqs_at_last.pop(0)
+        return None
+
+
+class BoardMqtt:
+    """The MQTT side of one board.
+
+    Parameters
+    ----------
+    app : App
+        The protocol handler (``handle_line``) and owner of the relay state.
+    m : dict
+        The checked ``"mqtt"`` block (:func:`parse_mqtt`).
+    make_client : callable
+        ``make_client(m) -> MQTTClient`` (tests inject; default :func:`make_client`).
+    clock : object
+        ``ticks_ms`` / ``ticks_diff`` / ``sleep_ms``.
+    now_s : callable
+        Unix time in seconds, for the replay window.
+    net_up : callable or None
+        Brings the network up before each connection attempt (Wi-Fi, see net.py).
+    """
+
+    def __init__(self, app: "Any", m: dict, make_client: "Any", clock: "Any",
+                 now_s: "Any" = None, net_up: "Any" = None) -> None:
+        self.net_up = net_up
+        self.app = app
+        self.m = m
+        self.make_client = make_client
+        self.clock = clock
+        self.t = m["base"] + "/" + m["id"] + "/"
+        self.guard = ReplayGuard(m["window_s"], now_s or time.time)
+        self.client = None  # type: Any
+        self.next_try_ms = clock.ticks_ms()
+        self.backoff_ms = int(m["backoff_s"] * 1000)
+        self.published = None  # type: Any
+        self.replies = []  # type: list
+        self.hub_seq = 0
+        self.connects = 0
+        self.status_topic = m["discovery_prefix"] + "/status"
+        self.info = {}  # type: dict
+        self.table = []  # type: list
+        self.has_open = False
+        self.load_board_facts()
+
+    def log(self, text: str) -> None:
+        if self.m["log"]:
+            print("mqtt:", text)
+
+    # --- connection ------------------------------------------------------------------
+    def connect(self) -> None:
+        c = self.make_client(self.m)
+        c.set_will(self.t + "avail", b"offline", True, 1)
+        c.on_message = self.on_message
+        c.connect(True)
+        self.client = c
+        subs = [(self.t + "req", 1)]
+        if self.m["hub"]:
+            subs += [(self.t + name + "/set", 1) for name in HUB_TOPICS]
+        if self.m["discovery"]:
+            subs.append((self.status_topic, 1))
+        c.subscribe(subs)  # every connect: the session is clean
+        c.publish(self.t + "avail", b"online", True, 1)
+        self.published = None
+        self.publish_state()
+        if self.m["discovery"]:
+            self.publish_discovery()
+        self.connects += 1
+        self.log("connected to %s:%d (%d)" % (self.m["host"], self.m["port"], self.connects))
+
+    def step(self, timeout_ms: int = 20) -> None:
+        """Serve the connection for up to ``timeout_ms``; reconnect with backoff."""
+        c = self.client
+        if c is None or not c.connected:
+            now = self.clock.ticks_ms()
+            if self.clock.ticks_diff(now, self.next_try_ms) >= 0:
+                try:
+                    if self.net_up is not None:
+                        self.net_up()
+                    self.connect()
+                    self.backoff_ms = int(self.m["backoff_s"] * 1000)
+                except OSError as exc:
+                    self.client = None
+                    self.log("connect failed: %s; next try in %d ms" % (exc, self.backoff_ms))
+                    self.next_try_ms = self.clock.ticks_ms() + self.backoff_ms
+                    self.backoff_ms = min(self.backoff_ms * 2,
+                                          int(self.m["backoff_max_s"] * 1000))
+                    return
+            else:
+                self.clock.sleep_ms(min(timeout_ms, max(1, self.clock.ticks_diff(
+                    self.next_try_ms, now))))
+                return
+        try:
+            self.client.poll(timeout_ms)
+            self.publish_state()
+        except OSError as exc:
+            self.log("connection lost: %s" % (exc,))
+            self.client.close()
+            self.client = None
+            self.next_try_ms = self.clock.ticks_ms()
+
+    def close(self, clean: bool = True) -> None:
+        """Leave: publish ``offline`` (a clean DISCONNECT sends no will) and disconnect."""
+        if self.client is not None and self.client.connected:
+            try:
+                if clean:
+                    self.client.publish(self.t + "avail", b"offline", True, 1)
+                self.client.disconnect()
+            except OSError:
+                pass
+        self.client = None
+
+    # --- the App, through its own protocol ------------------------------------------
+    def ask(self, verb: str, fields: "Any" = ()) -> dict:
+        """Fields of the App's OK reply to a local request (empty dict on ERR)."""
+        self.hub_seq = self.hub_seq % wire.SEQ_MAX + 1
+        try:
+            frame = wire.decode_reply(self.app.handle_line(wire.encode(self.hub_seq, verb,
+                                                                       fields)))
+        except wire.WireError:
+            return {}
+        return frame.fields if frame.verb == "OK" else {}
+
+    def load_board_facts(self) -> None:
+        """INFO and the ladder table, read once through the protocol."""
+        self.info = self.ask("INFO")
+        table = []  # type: list
+        total = int(self.info.get("table", "0"))
+        while len(table) < total:
+            chunk = self.ask("TABLE", (("start", len(table)), ("count", 16))).get("t", "")
+            if not chunk:
+                break
+            for item in chunk.split(","):
+                mask, ohms = item.split(":")
+                table.append((int(mask), float(ohms)))
+        self.table = table
+        self.has_open = "open" in self.info.get("roles", "").split(",")
+
+    # --- outgoing --------------------------------------------------------------------
+    def preset_of(self, end: str, mask: int, open_: bool) -> str:
+        """The first preset (by name) whose target equals the state, else ``custom``."""
+        for name in sorted(self.m["presets"]):
+            p = self.m["presets"][name]
+            if p["open"] != open_ or (p["end"] is not None and p["end"] != end):
+                continue
+            want = p["mask"]
+            if want is None and p["ohms"] is not None:
+                best = wire.nearest_by_ratio(self.table, p["ohms"])
+                want = best[0] if best is not None else None
+            if want == mask or (p["open"] and want is None):
+                return name
+        return CUSTOM
+
+    def publish_state(self) -> None:
+        """Publish the relay state (retained) when it differs from what was published."""
+        s = self.app.bank.state
+        key = (s.end, s.mask, s.open_)
+        if key == self.published:
+            return
+        f = self.ask("STATUS")
+        if not f:
+            return
+        ohms = float(f["ohms"]) if "ohms" in f else None
+        end, mask, open_ = f["end"], int(f["mask"]), f["open"] == "1"
+        preset = self.preset_of(end, mask, open_)
+        doc = {"end": end, "mask": mask, "open": open_, "ohms": ohms, "preset": preset,
+               "boots": int(f.get("boots", "0"))}
+        c = self.client
+        c.publish(self.t + "state", json.dumps(doc), True, 1)
+        if self.m["hub"]:
+            c.publish(self.t + "end", self.m["labels"][end], True, 1)
+            if ohms is not None:
+                c.publish(self.t + "ohms", f["ohms"], True, 1)
+            c.publish(self.t + "open", "ON" if open_ else "OFF", True, 1)
+            c.publish(self.t + "preset", preset, True, 1)
+        self.published = key
+
+    def publish_discovery(self) -> None:
+        import discovery  # type: ignore[import-not-found]  # host/nullsteer/discovery.py
+        items = discovery.entity_configs(
+            self.m["discovery_prefix"], self.m["base"], self.m["id"],
+            self.m["name"] or self.m["id"], self.info.get("fw", "?"),
+            self.info.get("board", "?"), [self.m["labels"]["A"], self.m["labels"]["B"]],
+            discovery.ohms_span(self.table), sorted(self.m["presets"]), self.has_open)
+        for topic, payload in items:
+            self.client.publish(topic, json.dumps(payload), True, 1)
+
+    # --- incoming --------------------------------------------------------------------
+    def on_message(self, topic: str, payload: bytes, retained: bool) -> None:
+        if topic == self.t + "req":
+            if not retained:
+                self.client.publish(self.t + "rep", self.host_frame(payload), False, 1)
+        elif topic == self.status_topic:
+            if payload == b"online" and self.m["discovery"]:
+                self.publish_discovery()
+        elif self.m["hub"] and topic.startswith(self.t) and topic.endswith("/set"):
+            if not retained:
+                self.hub_command(topic[len(self.t):-4], payload)
+        # anything else is not ours: ignored
+
+    def host_frame(self, line: bytes) -> bytes:
+        """Check a request line (signature, replay) and answer it."""
+        if not line.endswith(b"\n"):
+            line = line + b"\n"
+        key = self.m["key"]
+        if key is None:
+            return self.app.handle_line(line)
+        try:
+            frame = wire.decode_request(line)
+        except wire.WireError as exc:
+            return wire.encode_error(exc.seq, exc.code, exc.message)
+        try:
+            ts = wire.verify(line, key)
+        except wire.WireError as exc:  # verify does not know the seq: answer with it
+            return wire.encode_error(frame.seq, exc.code, exc.message)
+        for cached_line, reply in self.replies:
+            if cached_line == line:
+                return reply  # the host retried: same answer, nothing moves
+        why = self.guard.check(ts, frame.seq)
+        if why is not None:
+            return wire.encode_error(frame.seq, wire.E_REPLAY, why)
+        reply = self.app.handle_line(line)
+        self.replies.append((line, reply))
+        if len(self.replies) > REPLY_CACHE:
+            self.replies.pop(0)
+        return reply
+
+    def hub_command(self, name: str, payload: bytes) -> None:
+        """Turn a hub command into a SET frame for the App; refusals go to ``T log``."""
+        try:
+            text = payload.decode().strip()
+        except UnicodeError:
+            text = ""
+        s = self.app.bank.state
+        fields = None  # type: Any
+        if name == "end":
+            end = text.upper() if text.upper() in ("A", "B") else None
+            for e in ("A", "B"):
+                if text == self.m["labels"][e]:
+                    end = e
+            if end is not None:
+                fields = [("end", end), ("mask", s.mask), ("open", s.open_)]
+        elif name == "bearing" and self.m["bearing"] is not None:
+            try:
+                fields = [("end", end_for_bearing(float(text), self.m["bearing"])),
+                          ("mask", s.mask), ("open", s.open_)]
+            except ValueError:
+                pass
+        elif name == "ohms":
+            fields = [("end", s.end), ("ohms", text), ("open", False)]
+        elif name == "open" and text in ("ON", "OFF"):
+            fields = [("end", s.end), ("mask", s.mask), ("open", text == "ON")]
+        elif name == "preset" and text in self.m["presets"]:
+            p = self.m["presets"][text]
+            fields = [("end", p["end"] or s.end), ("open", p["open"])]
+            if p["ohms"] is not None:
+                fields.append(("ohms", wire.format_ohms(p["ohms"])))
+            else:
+                fields.append(("mask", s.mask if p["mask"] is None else p["mask"]))
+        elif name == "preset" and text == CUSTOM:
+            return
+        if fields is None:
+            self.client.publish(self.t + "log", "refused %s/set %s" % (name, text[:40]))
+            return
+        self.hub_seq = self.hub_seq % wire.SEQ_MAX + 1
+        try:
+            line = wire.encode(self.hub_seq, "SET", fields)
+        except ValueError:
+            self.client.publish(self.t + "log", "refused %s/set %s" % (name, text[:40]))
+            return
+        reply = self.app.handle_line(line)
+        if not reply.startswith(("NS1 %d OK" % self.hub_seq).encode()):
+            self.client.publish(self.t + "log", "refused %s/set: %s" % (
+                name, reply.decode().strip()))
+
+
+def make_client(m: dict) -> MQTTClient:
+    """An :class:`MQTTClient` for the ``"mqtt"`` block, with TLS when asked for."""
+    ctx = None
+    if m["tls"]:
+        import ssl
+        ctx = ssl.SSLContext(ssl.PROTOCOL_TLS_CLIENT)
+        if m["ca_file"]:
+            with open(m["ca_file"], "rb") as f:
+                ca = f.read()  # DER: MicroPython's TLS does not read PEM
+            ctx.load_verify_locations(cadata=ca)
+            ctx.verify_mode = ssl.CERT_REQUIRED  # type: ignore[attr-defined]
+        else:
+            ctx.verify_mode = ssl.CERT_NONE  # type: ignore[attr-defined]
+    return MQTTClient(client_id_for(m["id"]), m["host"], m["port"], m["user"],
+                      m["password"], m["keepalive_s"], ctx, m["server_hostname"])
+
+
+def client_id_for(device_id: str) -> str:
+    """A client id unique per connection: the device id plus random hex."""
+    import os
+    import binascii
+    return "ns-" + device_id + "-" + binascii.hexlify(os.urandom(4)).decode()
+
+
+def serve(app: "Any", m: dict, idle: "Any", clock: "Any", port: "Any" = None) -> None:
+    """Run the MQTT link for ever, beside the serial ``port`` when one is given.
+
+    Wi-Fi is joined before each connection attempt where the board has it (net.py);
+    ``idle()`` runs after each pass (feeds the watchdog)."""
+    import net
+    link = BoardMqtt(app, m, make_client, clock, net_up=net.joiner(m["wifi"], clock, idle))
+    asm = LineAssembler()
+    while True:
+        if port is not None:
+            data = port.read(2)
+            if data:
+                for line in asm.feed(data):
+                    port.write(app.handle_line(line))
+        link.step(20)
+        idle()
+
+
+def run(config_path: "str | None" = None) -> None:
+    """Boot a board whose config has an ``"mqtt"`` block and serve MQTT beside serial.
+
+    The block is taken out of the config before the board reader checks the rest, so
+    this entry point works whatever the board reader accepts; ``hw.run`` can hand over
+    to :func:`serve` the same way."""
+    import machine
+    import boardcfg
+    import hw
+    path = config_path or hw._getenv(hw.ENV_CONFIG) or hw.DEFAULT_CONFIG
+    try:
+        with open(path) as f:
+            raw = json.load(f)
+        block = raw.pop("mqtt", None) if isinstance(raw, dict) else None
+        cfg = boardcfg.parse_board(raw)
+        if block is None:
+            raise BoardConfigError("mqtt", "missing (broker, device id...)")
+        m = parse_mqtt(block, cfg.bits)
+    except (OSError, ValueError) as exc:
+        print("nullsteer: board config:", exc)
+        raise SystemExit(2)
+    clock = hw.Clock()
+    wdt = hw.make_watchdog(machine, cfg.watchdog_ms)
+    app = hw.build_app(cfg, machine, clock, wdt)
+    port = hw.open_port(cfg.link, machine, clock)
+    port.write(app.boot())
+    serve(app, m, wdt.feed, clock, port)

@@ -1,0 +1,139 @@
+"""Helpers for the MQTT tests: a simulated board that speaks MQTT, and a raw test client.
+
+:class:`MqttSimBoard` is the simulator's :class:`~nullsteer.sim.SimBoard` (the real
+firmware under the MicroPython unix port, fake pins) with an ``"mqtt"`` block added to
+its board config and ``discovery.py`` copied next to ``wire.py``; it boots through
+``mqtt_link.run`` (firmware/mqtt_link.py), which serves MQTT beside the serial pty.
+"""
+
+from __future__ import annotations
+
+import json
+import queue
+import shutil
+import threading
+import time
+from pathlib import Path
+from typing import Any
+
+import paho.mqtt.client as mqtt
+
+from nullsteer import discovery
+from nullsteer.sim import SimBoard
+
+REPO = Path(__file__).resolve().parents[1]
+BOARD_JSON = REPO / "examples" / "board-sim.json"
+MAIN = "import mqtt_link\nmqtt_link.run()\n"
+#: MicroPython heap for an MQTT board: the firmware compiled from source on the board
+#: (no frozen bytecode) plus sockets; boards with Wi-Fi have at least this much RAM.
+MQTT_HEAP_BYTES = 256 * 1024
+
+
+def board_config() -> dict[str, Any]:
+    return json.loads(BOARD_JSON.read_text())
+
+
+class MqttSimBoard(SimBoard):
+    """A simulated board with an MQTT link.
+
+    Parameters
+    ----------
+    mqtt_block : dict
+        The board config's ``"mqtt"`` block (see firmware/mqtt_link.py).
+    board : dict, optional
+        Board config without the block (default: examples/board-sim.json).
+    """
+
+    def __init__(self, mqtt_block: dict[str, Any], board: dict[str, Any] | None = None,
+                 state_dir: Any = None) -> None:
+        super().__init__(board or board_config(), state_dir=state_dir,
+                         heap_bytes=MQTT_HEAP_BYTES)
+        self.mqtt_block = dict(mqtt_block)
+
+    def start(self, timeout_s: float = 10.0) -> MqttSimBoard:
+        """Boot, then wait until the board is on the broker (its birth ``online``: it
+        publishes that after subscribing, so requests from then on are heard)."""
+        super().start(timeout_s)
+        m = self.mqtt_block
+        topic = f"{m.get('base', 'nullsteer')}/{m['id']}/avail"
+        w = Watcher(m["host"], m["port"], [topic], m.get("user"), m.get("password"))
+        try:
+            if w.wait_for(topic, b"online", timeout_s) is None:
+                raise RuntimeError("the simulated board did not come online: "
+                                   + self.console()[-500:])
+        finally:
+            w.close()
+        return self
+
+    def _build_modules(self, board_path: str) -> Path:
+        path = super()._build_modules(board_path)
+        shutil.copy(discovery.__file__, self.module_dir / "discovery.py")
+        (self.module_dir / "main.py").write_text(MAIN)
+        config = json.loads(path.read_text())
+        config["mqtt"] = self.mqtt_block
+        path.write_text(json.dumps(config))
+        return path
+
+
+class Watcher:
+    """A plain paho client that records every message on the filters it follows."""
+
+    def __init__(self, host: str, port: int, filters: list[str], user: str | None = None,
+                 password: str | None = None, client_id: str | None = None) -> None:
+        import uuid
+
+        self.messages: queue.Queue[tuple[str, bytes, bool]] = queue.Queue()
+        self.latest: dict[str, bytes] = {}
+        self._cv = threading.Condition()
+        self.connected = threading.Event()
+        self.refused: Any = None
+        c = mqtt.Client(mqtt.CallbackAPIVersion.VERSION2,
+                        client_id=client_id or f"watcher-{uuid.uuid4().hex[:10]}")
+        if user is not None:
+            c.username_pw_set(user, password)
+
+        def on_connect(client: Any, userdata: Any, flags: Any, reason: Any, props: Any) -> None:
+            try:
+                if reason.is_failure:
+                    self.refused = reason
+                    return
+                client.subscribe([(f, 1) for f in filters])
+                self.connected.set()
+            except Exception:  # noqa: BLE001 - keep the network thread alive
+                pass
+
+        def on_message(client: Any, userdata: Any, msg: Any) -> None:
+            try:
+                with self._cv:
+                    self.latest[msg.topic] = bytes(msg.payload)
+                    self.messages.put((msg.topic, bytes(msg.payload), bool(msg.retain)))
+                    self._cv.notify_all()
+            except Exception:  # noqa: BLE001
+                pass
+
+        c.on_connect = on_connect
+        c.on_message = on_message
+        c.connect(host, port, keepalive=30)
+        c.loop_start()
+        self.client = c
+
+    def wait_for(self, topic: str, payload: bytes | None = None,
+                 timeout_s: float = 5.0) -> bytes | None:
+        """The latest payload of ``topic`` once it is ``payload`` (any if None)."""
+        deadline = time.monotonic() + timeout_s
+        with self._cv:
+            while True:
+                got = self.latest.get(topic)
+                if got is not None and (payload is None or got == payload):
+                    return got
+                left = deadline - time.monotonic()
+                if left <= 0:
+                    return None
+                self._cv.wait(left)
+
+    def publish(self, topic: str, payload: bytes | str, retain: bool = False) -> None:
+        self.client.publish(topic, payload, qos=1, retain=retain)
+
+    def close(self) -> None:
+        self.client.disconnect()
+        self.client.loop_stop()
