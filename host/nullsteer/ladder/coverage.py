@@ -1,0 +1,98 @@
+"""How well a set of settings covers a wanted termination range (the optimiser's objective).
+
+The error of a setting ``s`` for a wanted termination ``R`` is a ratio,
+``max(s/R, R/s)``; it is quoted in percent as ``(ratio - 1) * 100``. The worst-case
+error of a ladder over ``[lo, hi]`` is the largest, over every wanted ``R`` in the
+range, of the error of the setting nearest (by ratio) to ``R``.
+
+With resistor tolerance ``t`` every setting of a resistor network lies within
+``[s (1 - t), s (1 + t)]`` (series and parallel combinations are increasing and
+homogeneous of degree one in the resistor values), and the user picks the setting
+from its nominal value. The worst-case ratio ``rho`` then satisfies
+``ln rho = h + tau`` where ``tau = 0.5 ln((1 + t)/(1 - t))`` and ``h`` is the
+nominal log error over the range shifted by ``1/sqrt(1 - t**2)``: the tolerance shifts
+and widens the target but does not change which design is best.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+_TINY_OHM = 1e-9
+
+
+def log_settings(settings_ohm: np.ndarray) -> np.ndarray:
+    """Sorted natural logs of the finite settings (zero is clamped to a tiny value)."""
+    s = np.asarray(settings_ohm, dtype=float)
+    s = s[np.isfinite(s)]
+    return np.sort(np.log(np.maximum(s, _TINY_OHM)), axis=-1)
+
+
+def worst_log_error_rows(x_sorted: np.ndarray, lo_log: float, hi_log: float) -> np.ndarray:
+    """Worst nominal log error for each row of sorted log settings.
+
+    Parameters
+    ----------
+    x_sorted : ndarray, shape (N, M)
+        Natural logs of the settings (ohms), each row ascending.
+    lo_log, hi_log : float
+        ln of the range ends (ohms), ``lo_log < hi_log``.
+
+    Returns
+    -------
+    ndarray, shape (N,)
+        ``max over ln R in [lo_log, hi_log] of min_m |x_m - ln R|``.
+    """
+    x = np.atleast_2d(x_sorted)
+    below = np.maximum(x[:, 0] - lo_log, 0.0)
+    above = np.maximum(hi_log - x[:, -1], 0.0)
+    worst = np.maximum(below, above)
+    if x.shape[1] > 1:
+        left, right = x[:, :-1], x[:, 1:]
+        p = np.maximum(left, lo_log)
+        q = np.minimum(right, hi_log)
+        c = np.clip(0.5 * (left + right), p, q)
+        tent = np.minimum(c - left, right - c)
+        tent = np.where(p <= q, tent, 0.0)
+        worst = np.maximum(worst, tent.max(axis=1))
+    return worst
+
+
+def worst_log_error(settings_ohm: np.ndarray, lo_ohm: float, hi_ohm: float) -> float:
+    """Worst nominal log error of one set of settings over [lo_ohm, hi_ohm]."""
+    x = log_settings(settings_ohm)
+    return float(worst_log_error_rows(x[None, :], math.log(lo_ohm), math.log(hi_ohm))[0])
+
+
+def tolerance_shift(tolerance_pct: float) -> tuple[float, float]:
+    """(range shift factor, tau) for a tolerance in percent; see the module docstring."""
+    t = tolerance_pct / 100.0
+    return 1.0 / math.sqrt(1.0 - t * t), 0.5 * math.log((1.0 + t) / (1.0 - t))
+
+
+def worst_case_error_pct(settings_ohm: np.ndarray, lo_ohm: float, hi_ohm: float,
+                         tolerance_pct: float) -> float:
+    """Worst-case ratio error over the range including resistor tolerance, percent."""
+    shift, tau = tolerance_shift(tolerance_pct)
+    h = worst_log_error(settings_ohm, lo_ohm * shift, hi_ohm * shift)
+    return (math.exp(h + tau) - 1.0) * 100.0
+
+
+def worst_step_pct(settings_ohm: np.ndarray, lo_ohm: float, hi_ohm: float) -> float:
+    """Largest ratio step between neighbouring settings that bracket part of the range, percent."""
+    s = np.sort(np.asarray(settings_ohm, dtype=float))
+    s = s[np.isfinite(s) & (s > 0)]
+    if s.size < 2:
+        return float("inf")
+    left, right = s[:-1], s[1:]
+    touches = (right >= lo_ohm) & (left <= hi_ohm)
+    if not touches.any():
+        return float("inf")
+    return float(((right / left)[touches].max() - 1.0) * 100.0)
+
+
+def ratio_error_pct(setting_ohm: float, wanted_ohm: float) -> float:
+    """Signed error of a setting for a wanted value, percent of the wanted value."""
+    return (setting_ohm / wanted_ohm - 1.0) * 100.0

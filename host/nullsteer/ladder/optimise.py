@@ -1,0 +1,241 @@
+"""Choose the ladder resistors: branch and bound over the standard values, with proofs.
+
+Objective: minimise the worst nominal log error ``h`` of the settings over the wanted
+range (see :mod:`nullsteer.ladder.coverage`; tolerance only shifts the range). Contacts
+are ideal during the search; the design reports the figures with parasitics.
+
+Search space: a base value B (0 or a candidate), shunt values (``series-shunt``) and a
+multiset of chain values r1 <= r2 <= ... <= rn, all from the candidate lists. The
+chain is built smallest first. After r1..rk are fixed, the chain values below
+B + r(k+1) are exactly the partial sums X_k = B + subset sums of r1..rk, so the
+settings below min_f f(B + r(k+1)) (f: the topology's chain -> setting maps) are
+exactly f(X_k). Two bounds follow, both valid for every completion:
+
+1. Gap bound. Let C be the end of the stretch [lo, C] covered (error < h*) by f(X_k).
+   No later setting can reach below min_f f(B + r(k+1)), so unless the range is
+   already covered, min_f f(B + r(k+1)) <= C e^h*, i.e. r(k+1) <= max_f f^-1(C e^h*) - B.
+2. Reach bound. Coverage never exceeds (largest setting) e^h*, and each later resistor
+   obeys bound 1 with that optimistic coverage; if even the largest allowed resistors
+   cannot reach hi, the node is infeasible (this gives a lower limit on r(k+1)).
+
+Branches are explored largest resistor first (near-binary growth finds a good incumbent
+early); a branch is cut only by a bound, so the result equals an exhaustive search over
+the same candidates (tested against :func:`exhaustive_best`).
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+import time
+from dataclasses import dataclass
+
+import numpy as np
+
+from nullsteer.ladder.coverage import log_settings, worst_log_error, worst_log_error_rows
+from nullsteer.ladder.eseries import ESeries
+from nullsteer.ladder.topology import LadderValues, Map, Topology
+
+_EPS = 1e-12
+
+
+@dataclass(frozen=True)
+class Candidates:
+    """Allowed values, ohms, ascending: chain resistors, base (0 is always allowed), shunts."""
+
+    chain_ohm: tuple[float, ...]
+    base_ohm: tuple[float, ...]
+    shunt_ohm: tuple[float, ...]
+
+
+@dataclass(frozen=True)
+class SearchResult:
+    """Best build found, its nominal log error over the (shifted) range, nodes visited, and
+    whether the search finished (False: stopped by the time limit, best found so far)."""
+
+    values: LadderValues
+    log_error: float
+    nodes: int
+    proven: bool = True
+
+
+class _Stop(Exception):
+    pass
+
+
+def default_candidates(series: ESeries, lo_ohm: float, hi_ohm: float, relays: int = 8) -> Candidates:
+    """Candidate values for a range: chain and base up to ``hi_ohm``, shunts to 20 x ``hi_ohm``."""
+    floor_ohm = max(0.1, lo_ohm * 2.0 ** -(relays + 1))
+    chain = tuple(series.values_ohm(floor_ohm, hi_ohm))
+    shunt = tuple(series.values_ohm(lo_ohm / 2.0, hi_ohm * 20.0))
+    return Candidates(chain, chain, shunt)
+
+
+def _cover_rows(y: np.ndarray, lo: float, up: float, down: float) -> np.ndarray:
+    """Per row: end of the stretch [lo, x] covered by intervals [y*down, y*up] (rows ascending)."""
+    u = np.maximum.accumulate(np.maximum(y * up, lo), axis=1)
+    prev = np.concatenate((np.full((y.shape[0], 1), lo), u[:, :-1]), axis=1)
+    bad = y * down > prev
+    first = np.argmax(bad, axis=1)
+    rows = np.arange(y.shape[0])
+    return np.where(bad[rows, first], prev[rows, first], u[:, -1])
+
+
+class _Search:
+    """Depth-first search over chain multisets; every base candidate is carried along
+    as a vector, so the chain tree is walked once for all bases."""
+
+    def __init__(self, lo: float, hi: float, n_chain: int, cands: np.ndarray,
+                 best_h: float, best: LadderValues | None) -> None:
+        self.lo, self.hi, self.n = lo, hi, n_chain
+        self.la, self.lb = math.log(lo), math.log(hi)
+        self.cands = cands
+        self.cmax = float(cands[-1])
+        self.best_h, self.best = best_h, best
+        self.nodes = 0
+        self.deadline = math.inf
+
+    def run(self, bases: np.ndarray, shunt: tuple[float, ...]) -> None:
+        self.shunt = shunt
+        self._dfs(0, 0, np.zeros(1), bases, [])
+
+    def _settings(self, chain: np.ndarray) -> np.ndarray:
+        if not self.shunt:
+            return chain
+        p = self.shunt[0]
+        return np.sort(np.concatenate((chain, chain * p / (chain + p)), axis=1), axis=1)
+
+    def _max_chain(self, y: np.ndarray) -> np.ndarray:
+        """Largest chain value whose lowest setting is <= y (inverse of the smallest map)."""
+        if not self.shunt:
+            return y
+        p = self.shunt[0]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return np.where(y < p, y * p / (p - y), np.inf)
+
+    def _reachable(self, top: np.ndarray, bases: np.ndarray, steps: int, up: float) -> np.ndarray:
+        for _ in range(steps):
+            top = top + np.minimum(self.cmax, self._max_chain(top * up * up) - bases)
+        return top * up >= self.hi
+
+    def _dfs(self, k: int, idx_min: int, x: np.ndarray, bases: np.ndarray,
+             chosen: list[float]) -> None:
+        self.nodes += 1
+        if self.nodes % 512 == 0 and time.perf_counter() > self.deadline:
+            raise _Stop
+        y = self._settings(bases[:, None] + x[None, :])
+        if k == self.n:
+            err = worst_log_error_rows(np.log(np.maximum(y, 1e-9)), self.la, self.lb)
+            i = int(np.argmin(err))
+            if err[i] < self.best_h:
+                self.best_h = float(err[i])
+                self.best = LadderValues(float(bases[i]), tuple(chosen), self.shunt)
+            return
+        h = self.best_h - _EPS
+        up = math.exp(h)
+        limit = self._max_chain(_cover_rows(y, self.lo, up, 1.0 / up) * up) - bases
+        hi_idx = int(np.searchsorted(self.cands, limit.max() * (1 + 1e-12), side="right"))
+        top = bases + x[-1]
+        for idx in range(hi_idx - 1, idx_min - 1, -1):
+            r = float(self.cands[idx])
+            reach = self._reachable(top + r, bases, self.n - k - 1, up)
+            if not reach.any():
+                break
+            keep = reach & (limit * (1 + 1e-12) >= r)
+            if keep.any():
+                self._dfs(k + 1, idx, np.sort(np.concatenate((x, x + r))), bases[keep],
+                          chosen + [r])
+                h = self.best_h - _EPS  # the incumbent may have improved
+                up = math.exp(h)
+
+
+def branch_and_bound(topology: Topology, lo_ohm: float, hi_ohm: float, relays: int,
+                     cands: Candidates, incumbent: SearchResult | None = None,
+                     time_limit_s: float | None = None) -> SearchResult:
+    """Optimal build over ``cands`` for the nominal range [lo_ohm, hi_ohm] (ideal contacts).
+
+    Parameters
+    ----------
+    topology : Topology
+    lo_ohm, hi_ohm : float
+        Wanted range (already shifted for tolerance), ohms.
+    relays : int
+        Ladder relays (chain + shunt).
+    cands : Candidates
+    incumbent : SearchResult, optional
+        A known build to beat (default: plain binary weighting; never changes the result).
+    time_limit_s : float, optional
+        Stop after this long and return the best build so far with ``proven=False``.
+    """
+    n_chain = topology.chain_relays(relays)
+    chain = np.asarray(cands.chain_ohm, dtype=float)
+    if incumbent is None:
+        incumbent = binary_weighted(topology, lo_ohm, hi_ohm, relays, cands)
+    search = _Search(lo_ohm, hi_ohm, n_chain, chain, incumbent.log_error + 1e-9, incumbent.values)
+    bases = np.array(sorted({0.0, *cands.base_ohm}))
+    shunts: list[tuple[float, ...]] = [()]
+    if topology.shunt_relays:
+        shunts = [(p,) for p in sorted(cands.shunt_ohm, reverse=True)]
+    if time_limit_s is not None:
+        search.deadline = time.perf_counter() + time_limit_s
+    proven = True
+    try:
+        for shunt in shunts:
+            search.run(bases, shunt)
+    except _Stop:
+        proven = False
+    best = search.best
+    assert best is not None
+    h = worst_log_error(topology.ideal_settings_ohm(best), lo_ohm, hi_ohm)
+    return SearchResult(best, h, search.nodes, proven)
+
+
+def binary_weighted(topology: Topology, lo_ohm: float, hi_ohm: float, relays: int,
+                    cands: Candidates) -> SearchResult:
+    """Plain binary weighting for comparison: base = lo, chain (hi - lo)/(2**n - 1) * 2**i,
+    each value rounded (by ratio) to the nearest candidate; no shunt search."""
+    n_chain = topology.chain_relays(relays)
+    chain = np.asarray(cands.chain_ohm)
+    base_c = np.asarray(cands.base_ohm)
+
+    def nearest(v: float, pool: np.ndarray) -> float:
+        return float(pool[np.argmin(np.abs(np.log(pool / v)))])
+
+    step = (hi_ohm - lo_ohm) / (2 ** n_chain - 1)
+    values = LadderValues(nearest(lo_ohm, base_c),
+                          tuple(sorted(nearest(step * 2 ** i, chain) for i in range(n_chain))),
+                          (nearest(hi_ohm * 20, np.asarray(cands.shunt_ohm)),) * topology.shunt_relays)
+    h = worst_log_error(topology.ideal_settings_ohm(values), lo_ohm, hi_ohm)
+    return SearchResult(values, h, 0)
+
+
+def exhaustive_best(topology: Topology, lo_ohm: float, hi_ohm: float, relays: int,
+                    cands: Candidates) -> SearchResult:
+    """Best build by trying every base, shunt and chain multiset (for tests; small cases only)."""
+    n_chain = topology.chain_relays(relays)
+    chain = np.asarray(cands.chain_ohm, dtype=float)
+    combos = np.array(list(itertools.combinations_with_replacement(range(chain.size), n_chain)))
+    values = chain[combos]                                        # (N, n)
+    masks = np.arange(2 ** n_chain)
+    bits = ((masks[:, None] >> np.arange(n_chain)[None, :]) & 1).astype(float)
+    sums = values @ bits.T                                        # (N, 2**n)
+    la, lb = math.log(lo_ohm), math.log(hi_ohm)
+    best_h, best, tried = math.inf, None, 0
+    shunts: list[tuple[float, ...]] = [()]
+    if topology.shunt_relays:
+        shunts = [(p,) for p in cands.shunt_ohm]
+    for base in sorted({0.0, *cands.base_ohm}):
+        x = base + sums
+        for shunt in shunts:
+            s = x if not shunt else np.concatenate((x, x * shunt[0] / (x + shunt[0])), axis=1)
+            err = worst_log_error_rows(np.sort(np.log(np.maximum(s, 1e-9)), axis=1), la, lb)
+            i = int(np.argmin(err))
+            tried += err.size
+            if err[i] < best_h:
+                best_h, best = float(err[i]), LadderValues(base, tuple(values[i]), shunt)
+    assert best is not None
+    return SearchResult(best, best_h, tried)
+
+
+__all__ = ["Candidates", "SearchResult", "default_candidates", "branch_and_bound",
+           "binary_weighted", "exhaustive_best", "log_settings"]

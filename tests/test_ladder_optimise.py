@@ -1,0 +1,74 @@
+"""The optimiser equals an exhaustive search over the same candidates."""
+
+import math
+
+import numpy as np
+import pytest
+
+from nullsteer.ladder import (Candidates, TOPOLOGIES, binary_weighted, branch_and_bound,
+                              exhaustive_best)
+from nullsteer.ladder.coverage import worst_case_error_pct, worst_log_error
+from nullsteer.ladder.eseries import SERIES
+
+
+def _cands(series, lo, hi, shunt_hi=None):
+    v = tuple(SERIES[series].values_ohm(lo, hi))
+    return Candidates(v, v, tuple(SERIES[series].values_ohm(lo, shunt_hi or hi)))
+
+
+CASES = [  # (topology, relays, range, series, candidate window)
+    ("series-shorting", 2, (400, 2500), "E24", (10, 2500)),
+    ("series-shorting", 3, (400, 2500), "E12", (10, 2500)),
+    ("series-shorting", 4, (600, 1500), "E12", (10, 1500)),
+    ("series-shorting", 5, (400, 2500), "E12", (22, 2200)),
+    ("series-shunt", 2, (400, 2500), "E12", (10, 10000)),
+    ("series-shunt", 3, (300, 3000), "E12", (33, 6800)),
+]
+
+
+@pytest.mark.parametrize("topo,relays,rng,series,window", CASES)
+def test_branch_and_bound_equals_exhaustive(topo, relays, rng, series, window):
+    # Exhaustive enumeration of every base x shunt x chain multiset is the reference
+    # (a search with no bounds cannot miss the optimum).
+    t = TOPOLOGIES[topo]
+    cands = _cands(series, window[0], min(window[1], rng[1]), window[1])
+    bnb = branch_and_bound(t, *rng, relays, cands)
+    ex = exhaustive_best(t, *rng, relays, cands)
+    assert bnb.proven
+    assert bnb.log_error == pytest.approx(ex.log_error, abs=1e-12)
+    # and the reported error is that of the reported values
+    assert bnb.log_error == pytest.approx(
+        worst_log_error(t.ideal_settings_ohm(bnb.values), *rng), abs=1e-15)
+
+
+def test_optimum_beats_binary_weighting():
+    # Binary weighting with rounded values is one point of the search space, so the
+    # optimum can only be as good or better (here strictly, as E24 rounding is coarse).
+    t = TOPOLOGIES["series-shorting"]
+    cands = _cands("E24", 1, 2500)
+    for n in (3, 4, 5):
+        assert branch_and_bound(t, 400, 2500, n, cands).log_error < \
+            binary_weighted(t, 400, 2500, n, cands).log_error
+
+
+def test_worst_case_with_tolerance_matches_brute_force():
+    # Direct check of the tolerance shift: for each wanted R, the best setting's worst
+    # ratio over builds at ±t; maximise over a dense grid of R.
+    rng = np.random.default_rng(1)
+    s = np.sort(rng.uniform(300, 3000, 40))
+    lo, hi, t = 400.0, 2500.0, 0.05
+    r = np.geomspace(lo, hi, 200001)
+    ratio = np.maximum(s[:, None] * (1 + t) / r, r / (s[:, None] * (1 - t))).min(axis=0)
+    brute = math.log(ratio.max())
+    exact = math.log(1 + worst_case_error_pct(s, lo, hi, 5.0) / 100)
+    step = math.log(hi / lo) / (r.size - 1)          # the grid can miss the peak by a step
+    assert brute - 1e-12 <= exact <= brute + step
+
+
+def test_worst_error_matches_dense_sampling():
+    s = np.array([390.0, 470, 560, 820, 1000, 1500, 2200])
+    r = np.geomspace(400, 2500, 100001)
+    dense = np.abs(np.log(s[:, None] / r)).min(axis=0).max()
+    step = math.log(2500 / 400) / (r.size - 1)
+    assert dense - 1e-12 <= worst_log_error(s, 400, 2500) <= dense + step
+    assert math.isclose(worst_log_error(np.array([1000.0]), 1000, 1000 * math.e ** 2), 2.0)
