@@ -11,7 +11,7 @@ import time
 import numpy as np
 
 from nullsteer.antenna.geometry import FedEnd, mesh_from_pieces
-from nullsteer.antenna.mom import MomOperator, port_excitation
+from nullsteer.antenna.mom import MID_FACTOR, MomOperator, port_excitation
 from nullsteer.antenna.ports import LoopModel
 from nullsteer.antenna.specs import parse_antenna, parse_ground
 
@@ -81,13 +81,43 @@ def fill_vs_lu(n_target=400):
     op = MomOperator(mesh, False)
     z = op.matrix(10e6)
     rhs = port_excitation(mesh.n_unknowns, [0, 1])
-    t_fill = best_of(lambda: op.matrix(10e6))
-    t_lu = best_of(lambda: np.linalg.solve(z, rhs))
+    # best of 30: LU runs in BLAS threads, which a second busy process on a 2-core
+    # machine stalls now and then (single runs of 3.5 ms and 160 ms were both seen)
+    t_fill = best_of(lambda: op.matrix(10e6), 30)
+    t_lu = best_of(lambda: np.linalg.solve(z, rhs), 30)
     print(f"matrix fill vs LU at {mesh.n_unknowns} unknowns: fill {t_fill * 1e3:.1f} ms, "
           f"LU+solve {t_lu * 1e3:.1f} ms, ratio {t_fill / t_lu:.2f}  [goal <= 2]")
     op_g = MomOperator(mesh, True)
     t_fill_g = best_of(lambda: op_g.matrix(10e6, 3.0 - 3.0j, 0.9 - 0.1j), 3)
     print(f"  same over real ground (two image sets): fill {t_fill_g * 1e3:.1f} ms")
+    op_ref = MomOperator(mesh, False, mid_factor=np.inf)
+    z_ref = op_ref.matrix(10e6)
+    t_ref = best_of(lambda: op_ref.matrix(10e6), 3)
+    zin = 1.0 / np.linalg.solve(z, rhs)[0, 0]
+    zin_ref = 1.0 / np.linalg.solve(z_ref, rhs)[0, 0]
+    print(f"  vs 2x2 Gauss on every pair ({t_ref * 1e3:.1f} ms): max |dZ_mn| / max |Z| "
+          f"{np.max(np.abs(z - z_ref)) / np.max(np.abs(z_ref)):.1e}, input impedance "
+          f"{abs(zin / zin_ref - 1) * 100:.4f} %")
+
+
+def fill_accuracy():
+    """What the centroid rule for distant pairs costs in accuracy (reference: 2×2 Gauss
+    on every pair, mid_factor = inf, the rule used for all far pairs before)."""
+    freqs = np.linspace(1.8e6, 2.0e6, 5)
+    el = np.array([10.0, 30.0, 60.0])
+    out = []
+    for mid in (MID_FACTOR, np.inf):
+        model = LoopModel(parse_antenna(FLAG), parse_ground({"kind": "real"}), mid_factor=mid)
+        sol = model.solve(freqs)
+        out.append((sol.optimum_termination_ohm("A", el, each=True),
+                    sol.feed_impedance_ohm(900.0, "A"), sol.fb_db(900.0, "A", el),
+                    sol.rdf_db(900.0, "A")))
+    (r0, z0, f0, d0), (r1, z1, f1, d1) = out
+    print(f"fill accuracy, flag over real ground, 1.8-2.0 MHz, el 10/30/60 deg, centroid "
+          f"rule beyond {MID_FACTOR:g} segment lengths vs 2x2 Gauss everywhere: R_opt "
+          f"{np.max(np.abs(r0 / r1 - 1)) * 100:.4f} %  [goal < 0.1 %], feed Z at 900 ohm "
+          f"{np.max(np.abs(z0 / z1 - 1)) * 100:.4f} %, F/B {np.max(np.abs(f0 - f1)):.4f} dB, "
+          f"RDF {np.max(np.abs(d0 - d1)):.4f} dB")
 
 
 def full_sweep():
@@ -115,4 +145,5 @@ def full_sweep():
 if __name__ == "__main__":
     port_reduction()
     fill_vs_lu()
+    fill_accuracy()
     full_sweep()

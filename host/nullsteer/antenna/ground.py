@@ -50,14 +50,18 @@ def fresnel(eps_c: np.ndarray | complex, grazing_rad: np.ndarray | float
     return rv, rh
 
 
-def reflection_coefficients(ground: GroundSpec, freq_hz: float,
+def reflection_coefficients(ground: GroundSpec, freq_hz: np.ndarray | float,
                             grazing_rad: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """(Rv, Rh) for the ground kind: zeros in free space, (+1, −1) over perfect ground."""
+    """(Rv, Rh) for the ground kind: zeros in free space, (+1, −1) over perfect ground.
+
+    ``freq_hz`` and ``grazing_rad`` broadcast together (e.g. (F, 1) against (D,)).
+    """
     g = np.asarray(grazing_rad, dtype=float)
+    shape = np.broadcast_shapes(np.shape(freq_hz), g.shape)
     if ground.kind is GroundKind.FREE:
-        return np.zeros(g.shape, complex), np.zeros(g.shape, complex)
+        return np.zeros(shape, complex), np.zeros(shape, complex)
     if ground.kind is GroundKind.PERFECT:
-        return np.ones(g.shape, complex), -np.ones(g.shape, complex)
+        return np.ones(shape, complex), -np.ones(shape, complex)
     eps = complex_permittivity(ground.permittivity, ground.conductivity_s_per_m, freq_hz)
     return fresnel(eps, g)
 

@@ -8,20 +8,27 @@ R = √(|r − r'|² + a²) (source current on the wire axis, observation on its
 
     Z_mn = (jη/4π) [ k ∫∫ f_m·f_n G  −  (1/k) ∫∫ (∇·f_m)(∇'·f_n) G ]
 
-The matrix is symmetric (Galerkin testing, reciprocity). Integrals are evaluated per
-segment pair for the two linear halves ("1 − s/l" and "s/l") of each segment, then summed
-into basis functions. Far segment pairs use a 2×2-point Gauss rule. Near pairs (centres
-closer than ``NEAR_FACTOR`` segment lengths, including the self term) use an 8-point outer
-rule, the 1/R part of the inner integral in closed form (∫ds/R = asinh, ∫s ds/R = ΔR) and
-an 8-point rule for the smooth remainder (e^{−jkR} − 1)/R.
+The matrix is symmetric (Galerkin testing, reciprocity). Integrals are taken per segment
+pair for the two linear halves ("1 − s/l" and "s/l") of each segment and summed into
+basis functions. Far pairs use the one-point (centroid) rule: A_ij = l_p l_q G(R_c)/4,
+with R_c the centre distance and a² = (a_p² + a_q²)/2 in the reduced kernel (symmetric),
+evaluated on the packed upper triangle only. Pairs closer than ``MID_FACTOR`` segment
+lengths get the 2×2-point Gauss rule and pairs closer than ``NEAR_FACTOR`` lengths
+(self term included) an 8-point outer rule with the 1/R part of the inner integral in
+closed form; both as frequency-independent power-series tables
+(:mod:`nullsteer.antenna.pairs`). The centroid rule's relative error on a pair at
+distance R is of order (l/R)²/24 + (kl)²/24 (Taylor expansion of the midpoint rule), so
+at R ≥ ``MID_FACTOR``·l with l ≤ λ/20 it is below 5e-4 per pair, and the impedances and
+optimum terminations move by far less (see the benchmark and tests).
 
 Ground enters through image source sets (:mod:`nullsteer.antenna.ground`): over perfect
 ground the mirrored segments with the current mirrored and negated (horizontal parts
 reversed, vertical kept, charge negated: exact). Over real ground the horizontal currents'
 image is sunk by a complex depth, while the vertical currents and the charges use the
-quasi-static image coefficient K = (εc − 1)/(εc + 1) at the mirror point. Delta-gap sources and lumped loads sit at basis nodes: a gap of
-voltage V at node m gives V_m = V, a load Z_L adds Z_L to Z_mm. Optional wire loss adds
-the surface resistance per length Rs/(2πa), Rs = √(πfμ0/σ), through the Gram matrix.
+quasi-static image coefficient K = (εc − 1)/(εc + 1) at the mirror point. Delta-gap sources
+and lumped loads sit at basis nodes: a gap of voltage V at node m gives V_m = V, a load
+Z_L adds Z_L to Z_mm. Optional wire loss adds the surface resistance per length
+Rs/(2πa), Rs = √(πfμ0/σ), through the Gram matrix of the halves.
 """
 
 from __future__ import annotations
@@ -32,29 +39,26 @@ import numpy as np
 
 from nullsteer.antenna.feedline import C0_M_PER_S
 from nullsteer.antenna.geometry import Mesh
+from nullsteer.antenna.pairs import (G2, PairSeries, Scatter, lam, pair_series,
+                                     segment_points, series_terms)
 
 ETA0_OHM = 376.730313668
 MU0_H_PER_M = 1.25663706212e-6
 NEAR_FACTOR = 3.0
-_G2 = np.array([0.5 - 0.5 / np.sqrt(3.0), 0.5 + 0.5 / np.sqrt(3.0)])
-_X8, _W8 = np.polynomial.legendre.leggauss(8)
-_X8, _W8 = 0.5 * (_X8 + 1.0), 0.5 * _W8
+MID_FACTOR = 8.0
 _MIRROR = np.array([1.0, 1.0, -1.0])
-
-
-def _lam(u: np.ndarray) -> np.ndarray:
-    """Values of the two linear halves (1 − u, u) at u, shape (2, len(u))."""
-    return np.stack([1.0 - u, u])
+_C = 1j * ETA0_OHM / (4.0 * np.pi)
 
 
 @dataclass
-class _Near:
-    """Near segment pairs of one source set, with their frequency-independent parts."""
+class _Set:
+    """A source set: packed centroid distances, vector-term factors, close-pair tables."""
 
-    p: np.ndarray          # (K,) observation segment
-    q: np.ndarray          # (K,) source segment
-    static: np.ndarray     # (K, 8, 2) closed-form ∫ λ_j / R over the source, per outer point
-    r_inner: np.ndarray    # (K, 8, 8) distances outer point -> inner point (real sets)
+    r_packed: np.ndarray               # (P,) metres (real sets)
+    c_over_r: np.ndarray               # (P,) (η/4π)/R, ohm/m
+    parts: dict[str, np.ndarray]       # name -> packed l_p l_q (t_p·t_q) of that part
+    close: PairSeries
+    close_parts: dict[str, np.ndarray]  # name -> per close pair t_p·t_q
 
 
 class MomOperator:
@@ -68,146 +72,114 @@ class MomOperator:
         True over a perfect or real ground (adds the image source set).
     wire_conductivity_s_per_m : float
         0 for lossless wire.
+    mid_factor : float
+        Pairs closer than this many segment lengths use the 2×2 Gauss rule instead of
+        the centroid rule (``np.inf``: every pair, the reference for accuracy checks).
     """
 
-    def __init__(self, mesh: Mesh, image: bool, wire_conductivity_s_per_m: float = 0.0):
+    def __init__(self, mesh: Mesh, image: bool, wire_conductivity_s_per_m: float = 0.0,
+                 mid_factor: float = MID_FACTOR):
         self.mesh = mesh
         self.image = image
         self.sigma_wire = wire_conductivity_s_per_m
+        s, n = mesh.n_segments, mesh.n_unknowns
         self.l = mesh.length_m
-        self.t = mesh.tangent
         self.a = mesh.radius_m
-        self.obs_pts = self._src_pts(mesh.start_m, mesh.end_m)
-        self.r_direct = self._far_distance(mesh.start_m, mesh.end_m)
-        self.near_direct = self._near(mesh.start_m, mesh.end_m, singular=True)
+        d = mesh.end_m - mesh.start_m
+        self._iu = np.triu_indices(s)
+        packed = np.empty((s, s), dtype=np.intp)
+        packed[self._iu] = np.arange(self._iu[0].size)
+        packed[self._iu[1], self._iu[0]] = packed[self._iu]
+        seg, end, sign = mesh.basis_seg, mesh.basis_end, mesh.basis_sign
+        # Z = Σ over the two halves of each basis function of σ_m σ_n (V ∓ S)[p, q]:
+        # index into h = [V − S, V + S, −(V − S), −(V + S), 0] (packed): the second
+        # block when the halves' ends differ, the negated ones for σ_m σ_n = −1, the
+        # zero for an absent half
+        n_packed = self._iu[0].size
+        self._gather = []
+        for e in range(2):
+            for f in range(2):
+                sg = np.outer(sign[:, e], sign[:, f])
+                differ = end[:, e][:, None] != end[:, f][None, :]
+                lin = (packed[seg[:, e][:, None], seg[:, f][None, :]] + n_packed * differ
+                       + 2 * n_packed * (sg < 0))
+                self._gather.append(np.where(sg == 0, 4 * n_packed, lin))
+        cen = 0.5 * (mesh.start_m + mesh.end_m)
+        a2 = 0.5 * (self.a[:, None] ** 2 + self.a[None, :] ** 2)
+        iu = self._iu
+
+        def full(v: np.ndarray) -> np.ndarray:   # (S, S) symmetric -> packed upper triangle
+            return v[iu]
+
+        dd = d @ d.T
+        r_dir = np.sqrt(np.sum((cen[:, None] - cen[None, :]) ** 2, 2) + a2)
+        close = pair_series(mesh, mesh.start_m, mesh.end_m, NEAR_FACTOR, mid_factor, r_dir)
+        tt = dd / np.outer(self.l, self.l)
+        eta = ETA0_OHM / (4.0 * np.pi)
+        self.sets = [_Set(full(r_dir), eta / full(r_dir), {"tt": full(dd)}, close,
+                          {"tt": tt[close.p, close.q]})]
         if image:
             self.img_start = mesh.start_m * _MIRROR
             self.img_end = mesh.end_m * _MIRROR
-            self.near_image = self._near(self.img_start, self.img_end, singular=True)
-        seg_l = mesh.basis_end * mesh.n_segments + mesh.basis_seg
-        n2 = 2 * mesh.n_segments
-        self._lin = [(seg_l[:, e, None] * n2 + seg_l[None, :, f]).ravel()
-                     for e in range(2) for f in range(2)]
-        self._sgn = [np.outer(mesh.basis_sign[:, e], mesh.basis_sign[:, f])
-                     for e in range(2) for f in range(2)]
-        q = self.obs_pts.shape[0]
-        self._triu = np.triu_indices(q)
-        self._r_packed = self.r_direct[self._triu]
-        self._ir_packed = 1.0 / self._r_packed
+            ci = cen * _MIRROR
+            r_img = np.sqrt(np.sum((cen[:, None] - ci[None, :]) ** 2, 2) + a2)
+            dz = np.outer(d[:, 2], d[:, 2])
+            dh = d[:, :2] @ d[:, :2].T
+            close_i = pair_series(mesh, self.img_start, self.img_end, NEAR_FACTOR,
+                                  mid_factor, r_img)
+            ll = np.outer(self.l, self.l)
+            self.sets.append(_Set(full(r_img), eta / full(r_img), {"z": full(dz), "h": full(dh)},
+                                  close_i,
+                                  {"z": (dz / ll)[close_i.p, close_i.q],
+                                   "h": (dh / ll)[close_i.p, close_i.q]}))
+            # complex image (real ground): horizontal distance² and height sums
+            self._rho2 = full(np.sum((cen[:, None, :2] - cen[None, :, :2]) ** 2, 2) + a2)
+            self._zsum = full(cen[:, None, 2] + cen[None, :, 2])
+            self._dh = self.sets[1].parts["h"]
+            self._cplx = _ComplexImagePairs(mesh, close_i, dh / ll)
+        # wire loss: Rs/(2πa) per metre through the Gram matrix of the halves, per Rs
+        idx = np.repeat(np.arange(s), 4)
+        ee, ff = np.tile([0, 0, 1, 1], s), np.tile([0, 1, 0, 1], s)
+        gram = np.array([[1 / 3, 1 / 6], [1 / 6, 1 / 3]])
+        self._loss = Scatter(mesh, idx, ee, idx, ff)
+        self._loss_table = self._loss.table(
+            (self.l[idx] / (2.0 * np.pi * self.a[idx]) * gram[ee, ff])[None, :])[0]
+        self._n = n
 
-    # -- geometry -------------------------------------------------------------------
-    def _src_pts(self, start: np.ndarray, end: np.ndarray) -> np.ndarray:
-        """Gauss points ordered point-major: index a·S + segment."""
-        return (start[None, :, :] + _G2[:, None, None] * (end - start)[None, :, :]).reshape(-1, 3)
-
-    def _far_distance(self, start: np.ndarray, end: np.ndarray) -> np.ndarray:
-        po, ps = self.obs_pts, self._src_pts(start, end)
-        a2 = np.tile(self.a ** 2, 2)
-        r2 = (np.sum(po * po, 1)[:, None] + np.sum(ps * ps, 1)[None, :] - 2.0 * (po @ ps.T)
-              + a2[None, :])
-        if np.isrealobj(r2):
-            np.maximum(r2, a2[None, :], out=r2)
-        return np.sqrt(r2)
-
-    def _near(self, start: np.ndarray, end: np.ndarray, singular: bool) -> _Near:
-        m = self.mesh
-        c_obs = 0.5 * (m.start_m + m.end_m)
-        c_src = 0.5 * (start + end)
-        d = np.linalg.norm(c_obs[:, None, :] - c_src[None, :, :], axis=2)
-        lim = NEAR_FACTOR * np.maximum(self.l[:, None], self.l[None, :])
-        p, q = np.nonzero(d < lim)
-        lq = self.l[q]
-        obs = m.start_m[p][:, None, :] + _X8[None, :, None] * (m.end_m[p] - m.start_m[p])[:, None, :]
-        s0 = start[q]
-        tq = (end[q] - s0) / lq[:, None]
-        dv = obs - s0[:, None, :]                                   # (K, 8, 3)
-        z0 = np.einsum("kox,kx->ko", dv, tq)
-        rho2 = np.sum(dv * dv, 2) - z0 ** 2 + self.a[q][:, None] ** 2
-        rho = np.sqrt(np.maximum(rho2, 1e-300))
-        r_a = np.sqrt(rho2 + z0 ** 2)
-        r_b = np.sqrt(rho2 + (lq[:, None] - z0) ** 2)
-        i0 = np.arcsinh((lq[:, None] - z0) / rho) + np.arcsinh(z0 / rho)
-        i1 = ((r_b - r_a) + z0 * i0) / lq[:, None]                  # ∫ (s'/l) / R ds'
-        static = np.stack([i0 - i1, i1], axis=2)
-        inner = s0[:, None, :] + (_X8[None, :, None] * lq[:, None, None]) * tq[:, None, :]
-        diff = obs[:, :, None, :] - inner[:, None, :, :]
-        r_inner = np.sqrt(np.sum(diff * diff, 3) + self.a[q][:, None, None] ** 2)
-        return _Near(p=p, q=q, static=static, r_inner=r_inner)
-
-    # -- fill -----------------------------------------------------------------------
+    # -- kernel -----------------------------------------------------------------------
     @staticmethod
-    def _kernel(k: float, r: np.ndarray, inv_r: np.ndarray | None = None) -> np.ndarray:
-        """G = e^{−jkR}/R (complex R allowed)."""
-        if not np.isrealobj(r):
-            return np.exp(-1j * k * r) / r
-        kr = k * r
-        ir = 1.0 / r if inv_r is None else inv_r
-        g = np.empty(r.shape, complex)
-        g.real = np.cos(kr) * ir
-        g.imag = np.sin(kr) * ir
-        g.imag *= -1.0
-        return g
+    def _kernel(k: float, r: np.ndarray, c_over_r: np.ndarray | None = None) -> np.ndarray:
+        """(jη/4π)·G = (η/4π)(sin kR + j cos kR)/R (complex R allowed).
 
-    def _near_integrals(self, k: float, near: _Near) -> tuple[np.ndarray, np.ndarray]:
-        """Accurate A (K, 2, 2) and Φ (K,) of the near pairs."""
-        kr = k * near.r_inner
-        smooth = np.where(kr > 1e-9, (np.exp(-1j * kr) - 1.0) / near.r_inner, -1j * k)
-        lam8 = _lam(_X8) * _W8                                      # (2, 8)
-        inner = np.einsum("kob,jb->koj", smooth, lam8) * self.l[near.q][:, None, None]
-        inner += near.static
-        a = np.einsum("ia,kaj->kij", lam8, inner) * self.l[near.p][:, None, None]
-        return a, a.sum(axis=(1, 2))
-
-    def _direct_kernel(self, k: float) -> np.ndarray:
-        """G between the direct set's own Gauss points, using its symmetry (half the work)."""
-        gp = self._kernel(k, self._r_packed, self._ir_packed)
-        g = np.empty(self.r_direct.shape, complex)
-        g[self._triu] = gp
-        g[self._triu[1], self._triu[0]] = gp
-        return g
-
-    def _add_set(self, zl: np.ndarray, k: float, r_far: np.ndarray, near: _Near | None,
-                 tt: np.ndarray, qcoef: complex, g: np.ndarray | None = None) -> None:
-        """Add one source set's (jη/4π)[k (t·t') A − qcoef (1/k) (∇·)(∇'·) Φ] to ``zl``.
-
-        Far pairs: 2×2 Gauss. With g_ab the kernel at Gauss points a (observation) and b
-        (source), e = 1/√3 and s = (+1, −1) for the halves (1 − u, u):
-        A_ij = l_p l_q / 16 · [ΣΣ g + s_j e Σ_a(g_a1 − g_a2) + s_i e Σ_b(g_1b − g_2b)
-        + s_i s_j e² (g11 − g12 − g21 + g22)], Φ = l_p l_q / 4 · ΣΣ g; the divergences are
-        d_i = ∓1/l so (∇·)(∇'·)Φ = s_i s_j ΣΣ g / 4. Near pairs are then replaced.
+        ``c_over_r`` is the precomputed (η/4π)/R of a real R.
         """
-        s = self.mesh.n_segments
-        c = 1j * ETA0_OHM / (4.0 * np.pi)
-        g4 = (self._kernel(k, r_far) if g is None else g).reshape(2, s, 2, s)
-        g11, g12, g21, g22 = g4[0, :, 0], g4[0, :, 1], g4[1, :, 0], g4[1, :, 1]
-        e = 1.0 / np.sqrt(3.0)
-        sa, sb, da, db = g11 + g22, g12 + g21, g11 - g22, g12 - g21
-        x0, x3 = sa + sb, (e * e) * (sa - sb)
-        x1, x2 = e * (da - db), e * (da + db)
-        vec = (c * k / 16.0) * tt * (self.l[:, None] * self.l[None, :])
-        sca = (c * qcoef / (4.0 * k)) * x0
-        zl[0, :, 0] += vec * (x0 + x3 + x1 + x2) - sca
-        zl[1, :, 1] += vec * (x0 + x3 - x1 - x2) - sca
-        zl[0, :, 1] += vec * (x0 - x3 - x1 + x2) + sca
-        zl[1, :, 0] += vec * (x0 - x3 + x1 - x2) + sca
-        if near is None or near.p.size == 0:
-            return
-        p, q = near.p, near.q
-        sgn = np.array([[1.0, -1.0], [-1.0, 1.0]])
-        y0, y1, y2, y3 = x0[p, q], x1[p, q], x2[p, q], x3[p, q]
-        far_a = np.stack([np.stack([y0 + y3 + y1 + y2, y0 - y3 - y1 + y2], -1),
-                          np.stack([y0 - y3 + y1 - y2, y0 + y3 - y1 - y2], -1)], 1)
-        far_a *= (self.l[p] * self.l[q] / 16.0)[:, None, None]
-        far_phi = y0 * self.l[p] * self.l[q] / 4.0
-        a_n, phi_n = self._near_integrals(k, near)
-        da_ = a_n - far_a
-        dphi = (phi_n - far_phi) / (self.l[p] * self.l[q])
-        zl[:, p, :, q] += c * (k * tt[p, q][:, None, None] * da_
-                               - (qcoef / k) * sgn[None] * dphi[:, None, None])
+        if not np.isrealobj(r):
+            return _C * np.exp(-1j * k * r) / r
+        kr = k * r
+        g = np.empty(r.shape, complex)
+        np.sin(kr, out=g.real)
+        np.cos(kr, out=g.imag)
+        cr = ETA0_OHM / (4.0 * np.pi) / r if c_over_r is None else c_over_r
+        g.real *= cr
+        g.imag *= cr
+        return g
 
-    def local_matrix(self, freq_hz: float, image_shift_m: complex = 0j,
-                     image_coef: complex = 1.0) -> np.ndarray:
-        """Segment-half interaction matrix, shape (2, S, 2, S) (half, segment), ohms.
+    def _close(self, z: np.ndarray, k: float, st: _Set, weights: dict[str, complex],
+               qcoef: complex) -> None:
+        """Add the close-pair corrections of one real source set to ``z``."""
+        cl = st.close
+        if cl.p.size == 0:
+            return
+        vals = cl.values(k, series_terms(k * cl.r_max_m), st.close_parts, self.l)
+        val = (-_C * qcoef / k) * vals["scalar"]
+        for name, w in weights.items():
+            val += (_C * k * w) * vals[name]
+        z.reshape(-1)[cl.scatter.targets] += val
+
+    # -- fill -------------------------------------------------------------------------
+    def matrix(self, freq_hz: float, image_shift_m: complex = 0j,
+               image_coef: complex = 1.0) -> np.ndarray:
+        """The (N, N) impedance matrix at ``freq_hz``, ohms (no port loads).
 
         Parameters
         ----------
@@ -219,49 +191,79 @@ class MomOperator:
             (1 for a perfect ground, (εc − 1)/(εc + 1) for a real one).
         """
         k = 2.0 * np.pi * freq_hz / C0_M_PER_S
-        s = self.mesh.n_segments
-        zl = np.zeros((2, s, 2, s), complex)
-        self._add_set(zl, k, self.r_direct, self.near_direct, self.t @ self.t.T, 1.0,
-                      self._direct_kernel(k))
+        d = self.sets[0]
+        npk = d.r_packed.size
+        h = np.empty(4 * npk + 1, complex)
+        h0, h1 = h[:npk], h[npk:2 * npk]
+        g = self._kernel(k, d.r_packed, d.c_over_r)
+        vec = (k / 4.0) * d.parts["tt"]                  # segment vectors folded in
+        np.multiply(g, vec - 1.0 / k, out=h0)
+        np.multiply(g, vec + 1.0 / k, out=h1)
+        perfect = image_shift_m == 0 and image_coef == 1.0
         if self.image:
-            th = self.t * np.array([1.0, 1.0, 0.0])
-            tz = self.t * np.array([0.0, 0.0, 1.0])
-            r_real = self._far_image_real()
-            if image_shift_m == 0 and image_coef == 1.0:
-                mirrored = tz @ tz.T - th @ th.T
-                self._add_set(zl, k, r_real, self.near_image, mirrored, -1.0)
-            else:
-                self._add_set(zl, k, r_real, self.near_image, image_coef * (tz @ tz.T),
-                              -image_coef)
-                shift = np.array([0.0, 0.0, -image_shift_m])
-                r_c = self._far_distance(self.img_start + shift, self.img_end + shift)
-                self._add_set(zl, k, r_c, None, -(th @ th.T), 0.0)
+            im = self.sets[1]
+            gi = self._kernel(k, im.r_packed, im.c_over_r)
+            vec = (k / 4.0) * (image_coef * im.parts["z"]
+                               - (im.parts["h"] if perfect else 0.0))
+            sca = -image_coef / k
+            h0 += gi * (vec - sca)
+            h1 += gi * (vec + sca)
+            if not perfect:
+                rc = np.sqrt(self._rho2 + (self._zsum + image_shift_m) ** 2)
+                gc = self._kernel(k, rc) * ((-k / 4.0) * self._dh)
+                h0 += gc
+                h1 += gc
+        np.negative(h[:2 * npk], out=h[2 * npk:4 * npk])
+        h[-1] = 0.0
+        z = h.take(self._gather[0])
+        for lin in self._gather[1:]:
+            z += h.take(lin)
+        self._close(z, k, d, {"tt": 1.0}, 1.0)
+        if self.image:
+            w = {"z": image_coef, "h": -1.0} if perfect else {"z": image_coef}
+            self._close(z, k, self.sets[1], w, -image_coef)
+            if not perfect:
+                self._cplx.add_to(z, k, image_shift_m)
         if self.sigma_wire > 0:
             rs = np.sqrt(np.pi * freq_hz * MU0_H_PER_M / self.sigma_wire)
-            r_per_m = rs / (2.0 * np.pi * self.a)
-            gram = np.array([[1 / 3, 1 / 6], [1 / 6, 1 / 3]])
-            idx = np.arange(s)
-            zl[:, idx, :, idx] += (r_per_m * self.l)[:, None, None] * gram
-        return zl
-
-    def _far_image_real(self) -> np.ndarray:
-        if not hasattr(self, "_r_img_real"):
-            self._r_img_real = self._far_distance(self.img_start, self.img_end)
-        return self._r_img_real
-
-    def assemble(self, zl: np.ndarray) -> np.ndarray:
-        """Sum segment-half interactions into the (N, N) basis-function matrix."""
-        flat = zl.reshape(-1)
-        n = self.mesh.n_unknowns
-        z = np.zeros((n, n), dtype=complex)
-        for lin, sgn in zip(self._lin, self._sgn):
-            z += sgn * flat.take(lin).reshape(n, n)
+            z.reshape(-1)[self._loss.targets] += rs * self._loss_table
         return z
 
-    def matrix(self, freq_hz: float, image_shift_m: complex = 0j,
-               image_coef: complex = 1.0) -> np.ndarray:
-        """The (N, N) impedance matrix at ``freq_hz``, ohms (no port loads)."""
-        return self.assemble(self.local_matrix(freq_hz, image_shift_m, image_coef))
+
+class _ComplexImagePairs:
+    """2×2-Gauss correction of the complex (sunk) image for pairs close to the mirror.
+
+    The complex depth depends on frequency, so these few pairs are evaluated directly.
+    """
+
+    def __init__(self, mesh: Mesh, close: PairSeries, th_th: np.ndarray) -> None:
+        p, q = close.p, close.q
+        self.p, self.q, self.scatter = p, q, close.scatter
+        ln = mesh.length_m
+        obs = segment_points(mesh.start_m, mesh.end_m, p, G2)
+        src = segment_points(mesh.start_m, mesh.end_m, q, G2)
+        a2 = mesh.radius_m[q] ** 2
+        self.rho2 = (np.sum((obs[:, :, None, :2] - src[:, None, :, :2]) ** 2, 3)
+                     + a2[:, None, None])                                  # (K, a, b)
+        self.zsum = obs[:, :, None, 2] + src[:, None, :, 2]
+        cen = 0.5 * (mesh.start_m + mesh.end_m)
+        cen_o, cen_s = cen[p], cen[q]
+        a2c = 0.5 * (mesh.radius_m[p] ** 2 + a2)
+        self.rho2_c = np.sum((cen_o[:, :2] - cen_s[:, :2]) ** 2, 1) + a2c
+        self.zsum_c = cen_o[:, 2] + cen_s[:, 2]
+        lg = lam(G2)
+        self.w = np.einsum("ia,jb->ijab", lg, lg)
+        self.fac = -(ln[p] * ln[q] / 4.0) * th_th[p, q]
+
+    def add_to(self, z: np.ndarray, k: float, shift_m: complex) -> None:
+        if self.p.size == 0:
+            return
+        r = np.sqrt(self.rho2 + (self.zsum + shift_m) ** 2)
+        rc = np.sqrt(self.rho2_c + (self.zsum_c + shift_m) ** 2)
+        g = np.exp(-1j * k * r) / r
+        gc = np.exp(-1j * k * rc) / rc
+        da = np.einsum("kab,ijab->kij", g, self.w) - gc[:, None, None]
+        self.scatter.add_to(z, (_C * k * self.fac[:, None, None] * da).reshape(-1))
 
 
 def port_excitation(n_unknowns: int, port_indices: list[int]) -> np.ndarray:

@@ -33,7 +33,7 @@ from nullsteer.antenna import farfield as ff
 from nullsteer.antenna.feedline import C0_M_PER_S
 from nullsteer.antenna.geometry import FedEnd, Mesh, as_fed_end, build_mesh
 from nullsteer.antenna.ground import image_depth_shift_m, quasi_static_image_coefficient
-from nullsteer.antenna.mom import ETA0_OHM, MomOperator, port_excitation
+from nullsteer.antenna.mom import ETA0_OHM, MID_FACTOR, MomOperator, port_excitation
 from nullsteer.antenna.specs import AntennaSpec, FeedSpec, GroundKind, GroundSpec
 
 _IDX = {FedEnd.A: (0, 1), FedEnd.B: (1, 0)}
@@ -103,11 +103,10 @@ class PortSolution:
         az, el = np.broadcast_arrays(np.asarray(az_deg, float), np.asarray(el_deg, float))
         key = (az.tobytes(), el.tobytes(), az.shape)
         if key not in self._cache:
-            if len(self._cache) > 32:
+            if len(self._cache) > 64:
                 self._cache.clear()
-            self._cache[key] = np.stack([
-                ff.fields(self.mesh, self.seg_currents[i], f, az, el, self.ground)
-                for i, f in enumerate(self.freqs_hz)])
+            self._cache[key] = ff.fields_multi(self.mesh, self.seg_currents, self.freqs_hz,
+                                               az, el, self.ground)
         return self._cache[key][self._sel(freq_index)]
 
     # -- circuit algebra --------------------------------------------------------------
@@ -140,26 +139,19 @@ class PortSolution:
             yt = np.where(np.isinf(zt) | (zt == 0), 0.0, 1.0 / np.where(zt == 0, 1, zt))
         return np.abs(vt) ** 2 * np.real(yt) / np.real(y_in)
 
-    def _field(self, vt, fields, pol: str) -> np.ndarray:
-        """|N|² for V_fed = 1: fields (F', 2, 2[fed, term], D) and vt (F', *T).
+    @staticmethod
+    def _field_basis(fields, pol: str) -> np.ndarray:
+        """(F', 4, D) real: |a|², Re(a·b̄), Im(a·b̄), |b|² summed over the polarisations.
 
-        |a + v·b|² = |a|² + 2·Re(v̄·a·b̄) + |v|²·|b|², summed over the polarisations first,
-        so the per-termination work is real arithmetic on (F', *T, D).
+        fields (F', 2 pol, 2 [fed, term], D). With V_t = v, |a + v·b|² is
+        [1, 2·Re v, 2·Im v, |v|²] · basis, so every termination costs four real
+        multiply-adds per direction.
         """
         pols = {"vertical": [0], "horizontal": [1]}.get(pol, [0, 1])
         a, b = fields[:, pols, 0], fields[:, pols, 1]
-        paa = np.sum(np.abs(a) ** 2, 1)
-        pbb = np.sum(np.abs(b) ** 2, 1)
         pab = np.sum(a * np.conj(b), 1)
-        shape = (paa.shape[0],) + (1,) * (vt.ndim - 1) + paa.shape[1:]
-        paa, pbb, pab = paa.reshape(shape), pbb.reshape(shape), pab.reshape(shape)
-        v = vt[..., None]
-        out = v.real * pab.real
-        out += v.imag * pab.imag
-        out *= 2.0
-        out += paa
-        out += (np.abs(v) ** 2) * pbb
-        return out
+        return np.stack([np.sum(a.real ** 2 + a.imag ** 2, 1), pab.real, pab.imag,
+                         np.sum(b.real ** 2 + b.imag ** 2, 1)], 1)
 
     def gain(self, termination_ohm, fed_end, az_deg, el_deg, freq_index=None,
              realized: bool = False, polarisation: str = "total") -> np.ndarray:
@@ -167,15 +159,25 @@ class PortSolution:
         sel = self._sel(freq_index)
         fe = as_fed_end(fed_end)
         az, el = np.broadcast_arrays(np.asarray(az_deg, float), np.asarray(el_deg, float))
-        pf = self.port_fields(az, el, freq_index)
-        pf = pf[:, :, list(_IDX[fe])]
+        key = ("basis", az.tobytes(), el.tobytes(), az.shape, fe, polarisation)
+        if key not in self._cache:
+            pf = self.port_fields(az, el)
+            self._cache[key] = self._field_basis(pf[:, :, list(_IDX[fe])], polarisation)
+        basis = self._cache[key][sel]                                       # (F', 4, D)
         vt, y_in = self._term(termination_ohm, fe, sel)
-        p_in = 0.5 * np.real(y_in)
-        scale = ff.gain_factor(self.freqs_hz[sel]).reshape((-1,) + (1,) * (vt.ndim - 1)) / p_in
+        scale = ff.gain_factor(self.freqs_hz[sel]).reshape((-1,) + (1,) * (vt.ndim - 1)) / (
+            0.5 * np.real(y_in))
         if realized:
             scale = scale * transducer_gain(1.0 / y_in, self.feed, self.freqs_hz[sel])
-        g = self._field(vt, pf, polarisation) * scale[..., None]
-        return g.reshape(g.shape[:-1] + az.shape)
+        coef = np.stack([scale, 2.0 * scale * vt.real, 2.0 * scale * vt.imag,
+                         scale * (vt.real ** 2 + vt.imag ** 2)], -1)
+        nf = coef.shape[0]            # F', or the termination's first axis when F' = 1
+        coef = coef.reshape(nf, -1, 4)
+        basis = np.broadcast_to(basis, (nf,) + basis.shape[1:])
+        g = np.empty((nf, coef.shape[1], basis.shape[-1]))
+        for i in range(nf):   # per frequency: the (T, D) block stays in cache
+            np.einsum("ti,id->td", coef[i], basis[i], out=g[i])
+        return g.reshape(vt.shape + az.shape)
 
     def gain_dbi(self, termination_ohm, fed_end, az_deg, el_deg, freq_index=None,
                  realized: bool = False, polarisation: str = "total") -> np.ndarray:
@@ -196,7 +198,10 @@ class PortSolution:
         """
         g = self.gain(termination_ohm, fed_end, az_deg, el_deg, freq_index, realized,
                       polarisation)
-        return 10.0 * np.log10(np.maximum(g, 1e-30))
+        np.maximum(g, 1e-30, out=g)
+        np.log10(g, out=g)
+        g *= 10.0
+        return g
 
     def axis_bearings_deg(self, fed_end) -> tuple[float, float]:
         """(front, back) compass bearings: toward the fed end, toward the terminated end."""
@@ -355,14 +360,19 @@ class LoopModel:
         Receiver chain for realized gain and received power (default: 9:1, 50 Ω, no coax).
     density : float
         Multiplier on the automatic segment counts (convergence studies).
+    mid_factor : float
+        Distance (segment lengths) below which pairs use the 2×2 Gauss rule instead of
+        the centroid rule (:class:`~nullsteer.antenna.mom.MomOperator`; accuracy studies).
     """
 
     def __init__(self, antenna: AntennaSpec, ground: GroundSpec,
-                 feed: FeedSpec | None = None, density: float = 1.0) -> None:
+                 feed: FeedSpec | None = None, density: float = 1.0,
+                 mid_factor: float = MID_FACTOR) -> None:
         self.antenna = antenna
         self.ground = ground
         self.feed = feed or FeedSpec()
         self.density = density
+        self.mid_factor = mid_factor
 
     def mesh(self, max_freq_hz: float) -> Mesh:
         grounded = self.ground.kind is not GroundKind.FREE
@@ -373,7 +383,7 @@ class LoopModel:
         freqs = np.atleast_1d(np.asarray(freqs_hz, float))
         mesh = self.mesh(float(np.max(freqs)))
         op = MomOperator(mesh, self.ground.kind is not GroundKind.FREE,
-                         self.antenna.wire_conductivity_s_per_m)
+                         self.antenna.wire_conductivity_s_per_m, self.mid_factor)
         ports = [mesh.ports[FedEnd.A], mesh.ports[FedEnd.B]]
         rhs = port_excitation(mesh.n_unknowns, ports)
         zs = np.stack([op.matrix(f, image_depth_shift_m(self.ground, f),
@@ -381,7 +391,7 @@ class LoopModel:
                         for f in freqs])
         cur = np.linalg.solve(zs, np.broadcast_to(rhs, zs.shape[:1] + rhs.shape))
         y = cur[:, ports, :]
-        seg = np.stack([mesh.segment_currents(c) for c in cur])
+        seg = np.moveaxis(mesh.segment_currents(np.moveaxis(cur, 0, 1)), 2, 0)
         return PortSolution(freqs_hz=freqs, y_siemens=y, seg_currents=seg, mesh=mesh,
                             ground=self.ground, feed=self.feed,
                             end_a_bearing_deg=self.antenna.end_a_bearing_deg)
