@@ -166,4 +166,9 @@ class App:
         t = self.clock.ticks_ms()
         stepped = self.bank.self_test(dwell)
         ms = self.clock.ticks_diff(self.clock.ticks_ms(), t)
-        return [("relays", stepped), ("ms", ms)] + self._state_fields(self.bank.state)
+        faults = self.bank.faults
+        out = [("relays", stepped), ("ms", ms)] + self._state_fields(self.bank.state)
+        out.append(("rb", "none" if faults is None else ("fail" if faults else "ok")))
+        if faults:
+            out.append(("bad", ",".join(faults)[:wire.MAX_VALUE]))
+        return out

@@ -6,11 +6,12 @@ Every problem raises :class:`BoardConfigError` naming the offending key.
 
 from array import array
 
+from drivercfg import parse_driver
 from relays import ENDS, ROLE_LADDER, ROLE_OPEN, ROLE_PROTECT, ROLE_REVERSE, ROLES, Relay, State
 
 TOP_KEYS = ("board", "relays", "protect_ladder", "link", "boot", "safe_state", "state_file",
-            "watchdog_ms", "ladder", "test_write_pause_ms")
-RELAY_KEYS = ("name", "role", "bit", "pin", "active_low", "settle_ms")
+            "watchdog_ms", "ladder", "test_write_pause_ms", "driver")
+RELAY_KEYS = ("name", "role", "bit", "pin", "active_low", "settle_ms", "reset_pin")
 LINK_KEYS = ("kind", "port", "path", "id", "baud", "tx", "rx", "de_pin")
 PORTS = ("stdio", "uart", "pty")
 BOOT_POLICIES = ("restore", "safe")
@@ -47,6 +48,7 @@ class BoardConfig:
     table_masks: "array"  # the ladder table sorted by ohms, as compact arrays
     table_ohms: "array"  # (6 bytes a row instead of two boxed objects)
     write_pause_ms = 0
+    driver: "dict"  # the checked "driver" block (drivercfg.parse_driver)
 
 
 def _unknown(obj: dict, allowed: tuple, where: str) -> None:
@@ -224,6 +226,7 @@ def parse_board(obj: object) -> BoardConfig:
         raise BoardConfigError("watchdog_ms", "use 0 (off) or at least 500 ms")
     parse_table(obj.get("ladder"), cfg)
     cfg.write_pause_ms = _int(obj, "test_write_pause_ms", 0, 1000, 0, "")
+    cfg.driver = parse_driver(obj.get("driver"), obj["relays"], cfg.pins)
     return cfg
 
 

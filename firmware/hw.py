@@ -89,12 +89,18 @@ def build_app(cfg: "BoardConfig", machine: "Any", clock: "Any", wdt: "Any",
               fs: "Any" = None) -> App:
     """Pins (all de-energised), driver, bank, store and app for ``cfg``; ``clock`` has
     ``ticks_ms``, ``ticks_diff`` and ``sleep_ms``; ``fs`` is the store's file access."""
-    pins = []
-    for k in range(len(cfg.relays)):
-        off_level = 1 if cfg.active_low[k] else 0
-        pins.append(machine.Pin(cfg.pins[k], machine.Pin.OUT, value=off_level))
     sleep = feeding_sleep(clock, wdt)
-    bank = RelayBank(cfg.relays, GpioDriver(pins, cfg.active_low), sleep, cfg.protect_ladder)
+    driver = None
+    if cfg.driver["kind"] != "gpio" or cfg.driver["reset_pins"] is not None:
+        from drivers import build_driver  # loaded only by boards that need it
+        driver = build_driver(cfg.driver, cfg.pins, cfg.active_low, machine, sleep)
+    if driver is None:  # plain GPIO, one pin per relay
+        pins = []
+        for k in range(len(cfg.relays)):
+            off_level = 1 if cfg.active_low[k] else 0
+            pins.append(machine.Pin(cfg.pins[k], machine.Pin.OUT, value=off_level))
+        driver = GpioDriver(pins, cfg.active_low)
+    bank = RelayBank(cfg.relays, driver, sleep, cfg.protect_ladder)
     has_open = any(r.role == ROLE_OPEN for r in cfg.relays)
     store = StateStore(cfg.state_file, cfg.bits, has_open, fs, cfg.write_pause_ms, sleep)
     return App(cfg, bank, store, clock, heap_in_use)
@@ -133,6 +139,7 @@ def _load_config(path: str) -> "BoardConfig":
         raise SystemExit(2)
     del boardcfg
     sys.modules.pop("boardcfg", None)
+    sys.modules.pop("drivercfg", None)
     return cfg
 
 

@@ -118,7 +118,7 @@ class RelayBank:
         Also protect the receiver while ladder/open relays change.
     """
 
-    def __init__(self, relays: list, driver: "GpioDriver", sleep_ms: "Any",
+    def __init__(self, relays: list, driver: "Any", sleep_ms: "Any",
                  protect_ladder: bool = True) -> None:
         self.relays = relays
         self.driver = driver
@@ -129,6 +129,7 @@ class RelayBank:
             if r.role == ROLE_LADDER and r.bit + 1 > self.bits:
                 self.bits = r.bit + 1
         self.state = State("A", 0, False)
+        self.faults = None  # type: list | None
 
     def _indices(self, role: str) -> list:
         return [k for k in range(len(self.relays)) if self.relays[k].role == role]
@@ -197,8 +198,14 @@ class RelayBank:
     def self_test(self, dwell_ms: int) -> int:
         """Protect the receiver, energise and release every other relay in turn (dwelling
         ``dwell_ms`` after each change), restore the state, reconnect. Returns how many
-        relays were stepped (the protect relay itself is exercised by the bracket)."""
+        relays were stepped (the protect relay itself is exercised by the bracket).
+
+        Where the driver can read its outputs back (``check()``), they are read after
+        every change; :attr:`faults` is then the list of relay names that read back
+        wrong (empty: all good), else None."""
         self._protect(True)
+        check = getattr(self.driver, "check", None)  # drivers with read-back have it
+        faults = [] if check is not None else None  # type: list | None
         stepped = 0
         for k in range(len(self.relays)):
             if self.relays[k].role == ROLE_PROTECT:
@@ -207,10 +214,24 @@ class RelayBank:
             for level in (not before, before):
                 self.driver.set(k, level)
                 self.driver.apply()
+                faults = self._read_back(check, faults)
                 self._sleep(max(dwell_ms, self.relays[k].settle_ms))
             stepped += 1
         self._protect(False)
+        self.faults = self._read_back(check, faults)
         return stepped
+
+    def _read_back(self, check: "Any", faults: "list | None") -> "list | None":
+        """Add the names of relays whose outputs read back wrong; None: no read-back."""
+        if faults is None:
+            return None
+        bad = check()
+        if bad is None:
+            return None
+        for k in bad:
+            if self.relays[k].name not in faults:
+                faults.append(self.relays[k].name)
+        return faults
 
     def levels(self) -> dict:
         """Relay name -> energised (as last applied)."""

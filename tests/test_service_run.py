@@ -84,7 +84,7 @@ def test_bad_arguments_exit_2(tmp_path, capsys, argv, flag):
 def test_service_sets_the_board_over_mqtt(tmp_path, make_broker):
     broker = make_broker()
     table = [tuple(r) for r in board_config()["ladder"]["table"]]
-    mask_900 = min(table, key=lambda r: abs(math.log(900.0 / r[1])))[0]  # nearest by ratio
+    mask_1300 = min(table, key=lambda r: abs(math.log(1300.0 / r[1])))[0]  # nearest by ratio (preset dx-west)
     blk = {"host": broker.host, "port": broker.port, "id": "flag-ne"}
     with MqttSimBoard(blk) as board:
         path = station_file(tmp_path, broker.url("flag-ne"))
@@ -98,4 +98,4 @@ def test_service_sets_the_board_over_mqtt(tmp_path, make_broker):
         assert len(svc.lines) == 2, svc.lines
         assert "catch-up" in svc.lines[0] and "dx-east" in svc.lines[0]
         assert "dx-west" in svc.lines[1] and "FAILED" not in " ".join(svc.lines)
-        assert board.state() == ("A", mask_900, False)
+        assert board.state() == ("A", mask_1300, False)

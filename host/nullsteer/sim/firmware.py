@@ -19,7 +19,7 @@ from nullsteer import wire
 from nullsteer.errors import ConfigError, LinkError
 
 #: Firmware modules in dependency order (``main.py`` is the board entry point).
-FIRMWARE_MODULES = ("relays", "boardcfg", "store", "app", "link_serial", "hw")
+FIRMWARE_MODULES = ("relays", "drivercfg", "drivers", "boardcfg", "store", "app", "link_serial", "hw")
 ENV_FIRMWARE = "NULLSTEER_FIRMWARE"
 
 
