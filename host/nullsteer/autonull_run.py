@@ -224,7 +224,8 @@ def save_band_preset(station_path: str | Path, name: str, fed_end: str, ohms: fl
 # -- the demo -------------------------------------------------------------------------
 def demo_autonull(station_path: str | Path, freq_mhz: float | None = None,
                   fed_end: str | None = None, dwell_s: float = 0.05, reads: int = 3,
-                  progress: ProgressFn | None = None) -> AutonullResult:
+                  progress: ProgressFn | None = None,
+                  board_config: str | Path | None = None) -> AutonullResult:
     """Auto-null on a simulated board (real firmware) with the virtual receiver.
 
     Parameters
@@ -237,6 +238,8 @@ def demo_autonull(station_path: str | Path, freq_mhz: float | None = None,
         "A"/"B"; default the end whose null points nearest that station.
     dwell_s, reads : float, int
         Dwell after each switching (s) and readings averaged per setting.
+    board_config : path or None
+        Board config for the simulated board; default the first device's.
     """
     from nullsteer.bearing import fed_end_for_null
     from nullsteer.controller import Controller
@@ -252,10 +255,11 @@ def demo_autonull(station_path: str | Path, freq_mhz: float | None = None,
     end_a = float(station.section("antenna").get("end_a_bearing_deg", 0.0))
     fe = fed_end or fed_end_for_null(loudest.bearing_deg, end_a)[0]
     devices = parse_devices(station)
-    board_config = next((d.board_config for d in devices if d.board_config is not None), None)
+    if board_config is None:
+        board_config = next((d.board_config for d in devices if d.board_config is not None), None)
     if board_config is None:
         raise ConfigError("device.board", "the demo needs a [[device]] with a board config")
-    with Controller(_open_sim(board_config), timeout_s=2.0) as ctl:
+    with Controller(_open_sim(Path(board_config)), timeout_s=2.0) as ctl:
         solution = solve_station_model(station, [freq_hz])
         start = predicted_optimum_ohm(solution, fe, station_elevations_deg(station))
         table = ctl.table()
