@@ -10,7 +10,7 @@ from drivercfg import parse_driver
 from relays import ENDS, ROLE_LADDER, ROLE_OPEN, ROLE_PROTECT, ROLE_REVERSE, ROLES, Relay, State
 
 TOP_KEYS = ("board", "relays", "protect_ladder", "link", "boot", "safe_state", "state_file",
-            "watchdog_ms", "ladder", "test_write_pause_ms", "driver")
+            "watchdog_ms", "ladder", "test_write_pause_ms", "driver", "mqtt")
 RELAY_KEYS = ("name", "role", "bit", "pin", "active_low", "settle_ms", "reset_pin")
 LINK_KEYS = ("kind", "port", "path", "id", "baud", "tx", "rx", "de_pin")
 PORTS = ("stdio", "uart", "pty")
@@ -49,6 +49,7 @@ class BoardConfig:
     table_ohms: "array"  # (6 bytes a row instead of two boxed objects)
     write_pause_ms = 0
     driver: "dict"  # the checked "driver" block (drivercfg.parse_driver)
+    mqtt: "dict | None" = None  # the raw "mqtt" block, checked by mqtt_link.parse_mqtt
 
 
 def _unknown(obj: dict, allowed: tuple, where: str) -> None:
@@ -227,6 +228,8 @@ def parse_board(obj: object) -> BoardConfig:
     parse_table(obj.get("ladder"), cfg)
     cfg.write_pause_ms = _int(obj, "test_write_pause_ms", 0, 1000, 0, "")
     cfg.driver = parse_driver(obj.get("driver"), obj["relays"], cfg.pins)
+    # The MQTT block is checked by mqtt_link.parse_mqtt (loaded only on MQTT boards).
+    cfg.mqtt = obj.get("mqtt")
     return cfg
 
 

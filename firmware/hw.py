@@ -152,6 +152,17 @@ def run(config_path: "str | None" = None) -> None:
     wdt = make_watchdog(machine, cfg.watchdog_ms)
     app = build_app(cfg, machine, clock, wdt)
     port = open_port(cfg.link, machine, clock)
-    event = app.boot()
-    port.write(event)
-    link_serial.serve(port, app, wdt.feed)
+    mqtt = None
+    if cfg.mqtt is not None:  # an MQTT board: the broker link runs beside the serial port
+        import mqtt_link
+        try:
+            mqtt = mqtt_link.parse_mqtt(cfg.mqtt, cfg.bits)
+        except ValueError as exc:
+            print("nullsteer: board config:", exc)
+            raise SystemExit(2)
+        cfg.mqtt = None  # the checked copy is all that is needed from here on
+    port.write(app.boot())
+    if mqtt is not None:
+        mqtt_link.serve(app, mqtt, wdt.feed, clock, port)
+    else:
+        link_serial.serve(port, app, wdt.feed)

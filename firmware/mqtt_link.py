@@ -54,9 +54,15 @@ import json
 import time
 
 import wire
-from boardcfg import BoardConfigError
 from link_serial import LineAssembler
 from mqtt_client import MQTTClient
+
+
+def _config_error(key: str, message: str) -> Exception:
+    """A boardcfg.BoardConfigError, imported only when there is an error to report (the
+    board config reader is unloaded after boot to save heap)."""
+    from boardcfg import BoardConfigError
+    return BoardConfigError(key, message)
 
 MQTT_KEYS = ("host", "port", "user", "password", "tls", "ca_file", "server_hostname",
              "base", "id", "keepalive_s", "discovery", "discovery_prefix", "name",
@@ -72,21 +78,21 @@ REPLY_CACHE = 4
 def _opt_str(obj: dict, key: str, default: "str | None") -> "str | None":
     value = obj.get(key, default)
     if value is not None and (not isinstance(value, str) or not value):
-        raise BoardConfigError("mqtt." + key, "must be a non-empty string")
+        raise _config_error("mqtt." + key, "must be a non-empty string")
     return value
 
 
 def _num(obj: dict, key: str, default: float, lo: float, hi: float) -> float:
     value = obj.get(key, default)
     if isinstance(value, bool) or not isinstance(value, (int, float)) or not lo <= value <= hi:
-        raise BoardConfigError("mqtt." + key, "must be a number in %s..%s" % (lo, hi))
+        raise _config_error("mqtt." + key, "must be a number in %s..%s" % (lo, hi))
     return value
 
 
 def _topic_word(value: str, key: str) -> str:
     for ch in value:
         if ch in "+#/ " or ord(ch) < 0x21 or ord(ch) > 0x7E:
-            raise BoardConfigError(key, "must not contain + # / or spaces: %r" % (value,))
+            raise _config_error(key, "must not contain + # / or spaces: %r" % (value,))
     return value
 
 
@@ -95,33 +101,33 @@ def parse_presets(obj: object, bits: int) -> dict:
     if obj is None:
         return {}
     if not isinstance(obj, dict):
-        raise BoardConfigError("mqtt.presets", "must be an object of presets")
+        raise _config_error("mqtt.presets", "must be an object of presets")
     out = {}
     for name in obj:
         p = obj[name]
         where = "mqtt.presets." + name
         _topic_word(name, where)
         if name == CUSTOM or not isinstance(p, dict):
-            raise BoardConfigError(where, "must be an object (and not named custom)")
+            raise _config_error(where, "must be an object (and not named custom)")
         for key in p:
             if key not in PRESET_KEYS:
-                raise BoardConfigError(where + "." + key, "unknown key")
+                raise _config_error(where + "." + key, "unknown key")
         end = p.get("end")
         if end is not None and end not in ("A", "B"):
-            raise BoardConfigError(where + ".end", "must be A or B")
+            raise _config_error(where + ".end", "must be A or B")
         mask = p.get("mask")
         if mask is not None and (isinstance(mask, bool) or not isinstance(mask, int)
                                  or not 0 <= mask < (1 << bits)):
-            raise BoardConfigError(where + ".mask", "outside the %d ladder bits" % bits)
+            raise _config_error(where + ".mask", "outside the %d ladder bits" % bits)
         ohms = p.get("ohms")
         if ohms is not None and (isinstance(ohms, bool) or not isinstance(ohms, (int, float))
                                  or not ohms > 0):
-            raise BoardConfigError(where + ".ohms", "must be > 0")
+            raise _config_error(where + ".ohms", "must be > 0")
         if mask is not None and ohms is not None:
-            raise BoardConfigError(where, "give mask or ohms, not both")
+            raise _config_error(where, "give mask or ohms, not both")
         open_ = p.get("open", False)
         if not isinstance(open_, bool):
-            raise BoardConfigError(where + ".open", "must be true or false")
+            raise _config_error(where + ".open", "must be true or false")
         out[name] = {"end": end, "mask": mask, "ohms": None if ohms is None else float(ohms),
                      "open": open_}
     return out
@@ -130,17 +136,17 @@ def parse_presets(obj: object, bits: int) -> dict:
 def parse_mqtt(obj: object, bits: int = 16) -> dict:
     """Check the board config's ``"mqtt"`` block; returns it with defaults filled in."""
     if not isinstance(obj, dict):
-        raise BoardConfigError("mqtt", "must be an object")
+        raise _config_error("mqtt", "must be an object")
     for key in obj:
         if key not in MQTT_KEYS:
-            raise BoardConfigError("mqtt." + key, "unknown key")
+            raise _config_error("mqtt." + key, "unknown key")
     m = {}  # type: dict
     m["host"] = _opt_str(obj, "host", None)
     if m["host"] is None:
-        raise BoardConfigError("mqtt.host", "missing (broker host name or address)")
+        raise _config_error("mqtt.host", "missing (broker host name or address)")
     tls = obj.get("tls", False)
     if not isinstance(tls, bool):
-        raise BoardConfigError("mqtt.tls", "must be true or false")
+        raise _config_error("mqtt.tls", "must be true or false")
     m["tls"] = tls
     m["port"] = int(_num(obj, "port", 8883 if tls else 1883, 1, 65535))
     for key in ("user", "password", "ca_file", "server_hostname", "key_hex", "name"):
@@ -150,7 +156,7 @@ def parse_mqtt(obj: object, bits: int = 16) -> dict:
         _topic_word(part, "mqtt.base")
     m["id"] = _topic_word(_opt_str(obj, "id", None) or "", "mqtt.id")
     if not m["id"]:
-        raise BoardConfigError("mqtt.id", "missing (the device id of the station file)")
+        raise _config_error("mqtt.id", "missing (the device id of the station file)")
     m["keepalive_s"] = int(_num(obj, "keepalive_s", 30, 5, 3600))
     m["discovery_prefix"] = _opt_str(obj, "discovery_prefix", "homeassistant")
     m["key"] = None
@@ -159,20 +165,20 @@ def parse_mqtt(obj: object, bits: int = 16) -> dict:
             import binascii
             m["key"] = binascii.unhexlify(m["key_hex"])
         except ValueError:
-            raise BoardConfigError("mqtt.key_hex", "must be hex digits")
+            raise _config_error("mqtt.key_hex", "must be hex digits")
         if len(m["key"]) < 16:
-            raise BoardConfigError("mqtt.key_hex", "key must be at least 16 bytes")
+            raise _config_error("mqtt.key_hex", "key must be at least 16 bytes")
     m["window_s"] = int(_num(obj, "window_s", 120, 1, 86400))
     hub = obj.get("hub", m["key"] is None)
     disc = obj.get("discovery", True)
     log = obj.get("log", False)
     for key, value in (("hub", hub), ("discovery", disc), ("log", log)):
         if not isinstance(value, bool):
-            raise BoardConfigError("mqtt." + key, "must be true or false")
+            raise _config_error("mqtt." + key, "must be true or false")
     m["hub"], m["discovery"], m["log"] = hub, disc and hub, log
     labels = obj.get("end_labels", {})
     if not isinstance(labels, dict):
-        raise BoardConfigError("mqtt.end_labels", "must be an object {A: ..., B: ...}")
+        raise _config_error("mqtt.end_labels", "must be an object {A: ..., B: ...}")
     m["bearing"] = obj.get("end_a_bearing_deg")
     if m["bearing"] is not None:
         _num(obj, "end_a_bearing_deg", 0, -360, 360)
@@ -185,7 +191,7 @@ def parse_mqtt(obj: object, bits: int = 16) -> dict:
     m["presets"] = parse_presets(obj.get("presets"), bits)
     wifi = obj.get("wifi")
     if wifi is not None and (not isinstance(wifi, dict) or "ssid" not in wifi):
-        raise BoardConfigError("mqtt.wifi", "must be an object with ssid (and password)")
+        raise _config_error("mqtt.wifi", "must be an object with ssid (and password)")
     m["wifi"] = wifi
     m["backoff_s"] = _num(obj, "backoff_s", 0.25, 0.01, 60)
     m["backoff_max_s"] = _num(obj, "backoff_max_s", 4.0, m["backoff_s"], 3600)
@@ -551,32 +557,3 @@ def serve(app: "Any", m: dict, idle: "Any", clock: "Any", port: "Any" = None) ->
                     port.write(app.handle_line(line))
         link.step(20)
         idle()
-
-
-def run(config_path: "str | None" = None) -> None:
-    """Boot a board whose config has an ``"mqtt"`` block and serve MQTT beside serial.
-
-    The block is taken out of the config before the board reader checks the rest, so
-    this entry point works whatever the board reader accepts; ``hw.run`` can hand over
-    to :func:`serve` the same way."""
-    import machine
-    import boardcfg
-    import hw
-    path = config_path or hw._getenv(hw.ENV_CONFIG) or hw.DEFAULT_CONFIG
-    try:
-        with open(path) as f:
-            raw = json.load(f)
-        block = raw.pop("mqtt", None) if isinstance(raw, dict) else None
-        cfg = boardcfg.parse_board(raw)
-        if block is None:
-            raise BoardConfigError("mqtt", "missing (broker, device id...)")
-        m = parse_mqtt(block, cfg.bits)
-    except (OSError, ValueError) as exc:
-        print("nullsteer: board config:", exc)
-        raise SystemExit(2)
-    clock = hw.Clock()
-    wdt = hw.make_watchdog(machine, cfg.watchdog_ms)
-    app = hw.build_app(cfg, machine, clock, wdt)
-    port = hw.open_port(cfg.link, machine, clock)
-    port.write(app.boot())
-    serve(app, m, wdt.feed, clock, port)

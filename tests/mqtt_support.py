@@ -2,15 +2,14 @@
 
 :class:`MqttSimBoard` is the simulator's :class:`~nullsteer.sim.SimBoard` (the real
 firmware under the MicroPython unix port, fake pins) with an ``"mqtt"`` block added to
-its board config and ``discovery.py`` copied next to ``wire.py``; it boots through
-``mqtt_link.run`` (firmware/mqtt_link.py), which serves MQTT beside the serial pty.
+its board config; the firmware's ``hw.run`` then serves MQTT beside the serial pty and
+the simulator copies ``discovery.py`` next to ``wire.py``.
 """
 
 from __future__ import annotations
 
 import json
 import queue
-import shutil
 import threading
 import time
 from pathlib import Path
@@ -18,15 +17,10 @@ from typing import Any
 
 import paho.mqtt.client as mqtt
 
-from nullsteer import discovery
 from nullsteer.sim import SimBoard
 
 REPO = Path(__file__).resolve().parents[1]
 BOARD_JSON = REPO / "examples" / "board-sim.json"
-MAIN = "import mqtt_link\nmqtt_link.run()\n"
-#: MicroPython heap for an MQTT board: the firmware compiled from source on the board
-#: (no frozen bytecode) plus sockets; boards with Wi-Fi have at least this much RAM.
-MQTT_HEAP_BYTES = 256 * 1024
 
 
 def board_config() -> dict[str, Any]:
@@ -46,9 +40,9 @@ class MqttSimBoard(SimBoard):
 
     def __init__(self, mqtt_block: dict[str, Any], board: dict[str, Any] | None = None,
                  state_dir: Any = None) -> None:
-        super().__init__(board or board_config(), state_dir=state_dir,
-                         heap_bytes=MQTT_HEAP_BYTES)
         self.mqtt_block = dict(mqtt_block)
+        super().__init__({**(board or board_config()), "mqtt": self.mqtt_block},
+                         state_dir=state_dir)
 
     def start(self, timeout_s: float = 10.0) -> MqttSimBoard:
         """Boot, then wait until the board is on the broker (its birth ``online``: it
@@ -64,15 +58,6 @@ class MqttSimBoard(SimBoard):
         finally:
             w.close()
         return self
-
-    def _build_modules(self, board_path: str) -> Path:
-        path = super()._build_modules(board_path)
-        shutil.copy(discovery.__file__, self.module_dir / "discovery.py")
-        (self.module_dir / "main.py").write_text(MAIN)
-        config = json.loads(path.read_text())
-        config["mqtt"] = self.mqtt_block
-        path.write_text(json.dumps(config))
-        return path
 
 
 class Watcher:

@@ -110,7 +110,7 @@ def test_mqtt_bundle_carries_broker_id_key_and_presets(tmp_path):
     names = [f.name for f in b.files]
     assert {"mqtt_client.py", "mqtt_link.py", "net.py", "discovery.py"} <= set(names)
     entry = dict((f.name, f.data) for f in b.files)["main.py"]
-    assert b"mqtt_link.run()" in entry  # the board starts its MQTT link at boot
+    assert b"hw.run()" in entry  # hw.run starts the MQTT link when the config has one
     check_board_config(b.board_config)  # the firmware's own readers accept it
 
 

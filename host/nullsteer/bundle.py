@@ -56,9 +56,6 @@ MQTT_MODULES = ("mqtt_client.py", "mqtt_link.py", "net.py")
 BOARD_FILE = "board.json"
 MANIFEST = "MANIFEST.json"
 ENTRY = "main.py"
-#: Entry point of an MQTT board (serial keeps running beside it; see firmware/mqtt_link.py).
-MQTT_ENTRY = b'"""Entry point of an MQTT board (written by nullsteer firmware bundle)."""\n\n' \
-             b"import mqtt_link\n\nmqtt_link.run()\n"
 FIRMWARE_KEYS = frozenset({"board_port", "uart_id", "baud", "tx_pin", "rx_pin", "de_pin",
                            "watchdog_ms", "wifi_ssid", "wifi_password_env"})
 _FW_VERSION = re.compile(r'^FW_VERSION\s*=\s*"([^"]+)"', re.MULTILINE)
@@ -347,9 +344,7 @@ def make_bundle(station: Station, device: Device, ladder: dict[str, Any] | None 
     files.append(BundleFile("wire.py", Path(wire.__file__).read_bytes()))
     if "mqtt" in config:
         files.append(BundleFile("discovery.py", Path(discovery.__file__).read_bytes()))
-        entry = MQTT_ENTRY
-    else:
-        entry = (folder / ENTRY).read_bytes()
+    entry = (folder / ENTRY).read_bytes()
     files.append(BundleFile(BOARD_FILE, (json.dumps(config, indent=1) + "\n").encode()))
     files.append(BundleFile(ENTRY, entry))
     return Bundle(device.id, firmware_version(folder), config, tuple(files))

@@ -21,11 +21,15 @@ from typing import Any
 
 from nullsteer import wire
 from nullsteer.errors import ConfigError, LinkError
-from nullsteer.sim.firmware import find_micropython, firmware_dir, parse_board_config, wire_source
+from nullsteer.sim.firmware import (discovery_source, find_micropython, firmware_dir,
+                                    parse_board_config, wire_source)
 from nullsteer.sim.pinlog import RelayEvent, decode_state, final_levels, read_pin_log, relay_events
 from nullsteer.sim.ptyrelay import PtyRelay
 
 DEFAULT_HEAP_BYTES = 128 * 1024
+#: MicroPython heap for a board with an "mqtt" block: the firmware compiled from source
+#: on the board (no frozen bytecode) plus sockets; boards with Wi-Fi have this much RAM.
+MQTT_HEAP_BYTES = 256 * 1024
 STATE_FILE = "ns_state.txt"
 FAKE_MACHINE = Path(__file__).with_name("fake_machine.py")
 
@@ -61,7 +65,8 @@ class SimBoard:
                  None = None, heap_bytes: int | None = None) -> None:
         self.config = read_board_config(board_config)
         self.cfg = parse_board_config(self.config)
-        self.heap_bytes = int(heap_bytes or DEFAULT_HEAP_BYTES)
+        self.heap_bytes = int(heap_bytes or (MQTT_HEAP_BYTES if "mqtt" in self.config
+                                             else DEFAULT_HEAP_BYTES))
         if self.heap_bytes < 8 * 1024:
             raise ConfigError("heap_bytes", f"{self.heap_bytes} is too small (>= 8192)")
         self._tmp = Path(tempfile.mkdtemp(prefix="nullsteer-sim-"))
@@ -93,6 +98,8 @@ class SimBoard:
         for src in firmware_dir().glob("*.py"):
             shutil.copy(src, self.module_dir / src.name)
         shutil.copy(wire_source(), self.module_dir / "wire.py")
+        if "mqtt" in self.config:
+            shutil.copy(discovery_source(), self.module_dir / "discovery.py")
         shutil.copy(FAKE_MACHINE, self.module_dir / "machine.py")
         config = dict(self.config)
         config["link"] = {"kind": "serial", "port": "pty", "path": board_path}

@@ -37,6 +37,13 @@ def wire_source() -> Path:
     return Path(wire.__file__)
 
 
+def discovery_source() -> Path:
+    """The discovery-config builder copied onto MQTT boards as ``discovery.py``."""
+    from nullsteer import discovery
+
+    return Path(discovery.__file__)
+
+
 def find_micropython() -> Path:
     """The ``micropython`` executable: next to ``sys.executable`` first, then PATH."""
     here = Path(sys.executable).parent / "micropython"
