@@ -171,3 +171,28 @@ def test_null_bearing_from_station_file(capsys):
                            "--null-bearing", "70", "--mask", "2", "--json")
     data = json.loads(out)
     assert code == 0 and data["fed_end"] == "B" and data["null_bearing_deg"] == pytest.approx(65.0)
+
+
+def test_selftest_steps_every_relay_with_the_receiver_protected(board, capsys):
+    # Break-before-make practice (DESIGN.md): the protect relay is on before any other
+    # relay moves and released only at the end.
+    before = len(board.events())
+    code, out, _ = run_cli(capsys, "selftest", "--link", board.url, "--dwell-ms", "0", "--json")
+    data = json.loads(out)
+    assert code == 0 and data["rb"] == "none" and data["readback_failed"] is False
+    events = board.events()[before:]
+    protect = [i for i, e in enumerate(events) if e.name == "PROT"]
+    others = [i for i, e in enumerate(events) if e.name != "PROT"]
+    assert events[protect[0]].energised and protect[0] < min(others)
+    assert not events[protect[-1]].energised and protect[-1] > max(others)
+    # every non-protect relay was stepped on and off again
+    names = {e.name for e in events} - {"PROT"}
+    assert len(names) == int(data["relays"])
+
+
+def test_info_warns_on_a_firmware_mismatch(monkeypatch, capsys):
+    import nullsteer.bundle as bundle
+    monkeypatch.setattr(bundle, "firmware_version", lambda firmware=None: "9.0.0")
+    code, out, err = run_cli(capsys, "info", "--link", "loop://", "--json")
+    assert code == 0 and "warning" in err
+    assert json.loads(out)["firmware_warning"]

@@ -187,6 +187,13 @@ class Controller:
                                    roles=roles, table_entries=_int(f, "table"))
         return self._info
 
+    def firmware_mismatch(self) -> str | None:
+        """One line of warning when the board's firmware is not the one this host ships
+        (different major or minor version), else None."""
+        from nullsteer.bundle import check_firmware_version, firmware_version
+
+        return check_firmware_version(self.info().firmware, firmware_version())
+
     def status(self) -> BoardStatus:
         return status_from_fields(self.request("STATUS"))
 
@@ -234,8 +241,9 @@ class Controller:
         info = self.info()
         relays = max(len(info.roles), info.bits + 3)
         old = self.timeout_s
-        # each relay is stepped on and off with a dwell each; allow 50 % margin
-        self.timeout_s = old + 1.5 * relays * 2 * dwell_ms / 1000.0
+        # each relay is stepped on and off, dwelling each time; 150 ms per step more
+        # covers settle times and latching-relay pulses
+        self.timeout_s = old + relays * 2 * (dwell_ms + 150) / 1000.0
         try:
             return self.request("TEST", (("dwell_ms", dwell_ms),))
         finally:

@@ -147,6 +147,9 @@ class DeviceRunner:
         """Put the board in ``target``; returns a short note for the log line."""
         if self.controller is None:
             self.controller = self._opener(self.device)
+            warning = self.controller.firmware_mismatch()
+            if warning:
+                log.warning("%s: %s", self.device.id, warning)
         c = self.controller
         try:
             status = c.status()

@@ -97,8 +97,12 @@ def run_info(args: argparse.Namespace) -> int:
     with connect(args) as ctl:
         info = ctl.info()
         table = ctl.table() if info.table_entries else []
+        warning = ctl.firmware_mismatch()
+    if warning:
+        sys.stderr.write(f"nullsteer: warning: {warning}\n")
     if args.json:
         out = info.to_json()
+        out["firmware_warning"] = warning
         out["table"] = [{"mask": m, "ohms": r} for m, r in table]
         print_json(out)
     else:
@@ -168,14 +172,32 @@ def run_flip(args: argparse.Namespace) -> int:
     return 0
 
 
+def selftest_summary(result: dict[str, str]) -> tuple[str, bool]:
+    """A human line for a TEST reply, and whether the read-back found a fault."""
+    readback = result.get("rb", "none")
+    text = (f"self-test: {result.get('relays', '?')} relays stepped in {result.get('ms', '?')} ms, "
+            "receiver protected throughout; ")
+    if readback == "ok":
+        text += "read-back ok"
+    elif readback == "fail":
+        text += (f"read-back FAILED for {result.get('bad', '?').replace(',', ', ')} "
+                 "(check their coil drivers and wiring)")
+    else:
+        text += "read-back not available on this driver"
+    return text, readback == "fail"
+
+
 def run_selftest(args: argparse.Namespace) -> int:
+    if not 0 <= args.dwell_ms <= 2000:
+        raise ConfigError("--dwell-ms", f"must be 0..2000 ms, got {args.dwell_ms}")
     with connect(args) as ctl:
         result = ctl.self_test(dwell_ms=args.dwell_ms)
+    text, failed = selftest_summary(result)
     if args.json:
-        print_json(result)
+        print_json({**result, "readback_failed": failed})
     else:
-        print("self-test: " + ", ".join(f"{k}={v}" for k, v in result.items()))
-    return 0
+        print(text)
+    return 6 if failed else 0
 
 
 def run_sim(args: argparse.Namespace) -> int:

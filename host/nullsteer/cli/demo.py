@@ -66,6 +66,9 @@ def step_board(args: argparse.Namespace, station: Station, board_config: Path) -
         info = ctl.info()
         table = ctl.table()
         out["board"] = info.to_json()
+        warning = ctl.firmware_mismatch()
+        if warning:
+            _say(args, f"  warning: {warning}")
         _say(args, f"simulated board on {board.url}: firmware {info.firmware}, "
                    f"{info.bits} ladder relays, {len(table)} settings "
                    f"{table[0][1]:.0f}..{table[-1][1]:.0f} ohm")

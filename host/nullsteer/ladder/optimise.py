@@ -1,42 +1,62 @@
 """Choose the ladder resistors: branch and bound over the standard values, with proofs.
 
 Objective: minimise the worst nominal log error ``h`` of the settings over the wanted
-range (see :mod:`nullsteer.ladder.coverage`; tolerance only shifts the range). Contacts
-are ideal during the search; the design reports the figures with parasitics.
+range [lo, hi] (see :mod:`nullsteer.ladder.coverage`; tolerance only shifts the range).
+Contacts are ideal during the search; the design reports the figures with parasitics.
 
 Search space: a base value B (0 or a candidate), shunt values (``series-shunt``) and a
-multiset of chain values r1 <= r2 <= ... <= rn, all from the candidate lists. The
-chain is built smallest first. After r1..rk are fixed, the chain values below
-B + r(k+1) are exactly the partial sums X_k = B + subset sums of r1..rk, so the
-settings below min_f f(B + r(k+1)) (f: the topology's chain -> setting maps) are
-exactly f(X_k). Two bounds follow, both valid for every completion:
+multiset of chain values r1 <= r2 <= ... <= rn, all from the candidate lists (symmetry:
+each multiset is visited once, in ascending order). The chain is built smallest first.
+P_k denotes the subset sums of r1..rk (sorted, with multiplicity), S_k their largest,
+f the topology's chain -> setting maps (identity, and x -> x p / (x + p) with a shunt
+p), so every setting is f(B + q + x) for one map, x in P_k and q a subset sum of the
+later values r(k+1)..rn. The search looks for builds strictly better than the incumbent
+h*; with u = e^h* a build is better only if the intervals [s/u, s u] of its settings s
+cover [lo, hi]. A branch is cut only by one of the bounds below, each of which holds for
+every completion, so the result equals an exhaustive search over the same candidates
+(tested against :func:`exhaustive_best`).
 
-1. Gap bound. Let C be the end of the stretch [lo, C] covered (error < h*) by f(X_k).
-   No later setting can reach below min_f f(B + r(k+1)), so unless the range is
-   already covered, min_f f(B + r(k+1)) <= C e^h*, i.e. r(k+1) <= max_f f^-1(C e^h*) - B.
-2. Reach bound. Coverage never exceeds (largest setting) e^h*, and each later resistor
-   obeys bound 1 with that optimistic coverage; if even the largest allowed resistors
-   cannot reach hi, the node is infeasible (this gives a lower limit on r(k+1)).
+1. Gap bound. Every later value is >= r(k+1), so the settings below min_f f(B + r(k+1))
+   are exactly f(B + P_k). Let C be the end of the stretch [lo, C] those cover. No later
+   setting lies below min_f f(B + r(k+1)), so unless C >= hi,
+   min_f f(B + r(k+1)) <= C u, i.e. r(k+1) <= max_f f^-1(C u) - B.
+2. Reach bound. Coverage never exceeds (largest setting) u, and each later value obeys
+   bound 1 with that optimistic coverage; if even the largest allowed values cannot
+   reach hi the node is infeasible. As reach grows with r(k+1), the loop over r(k+1)
+   (descending) stops at the first value that fails.
+3. Counting bound. Split the settings into 2^m clusters f(B + q + P_k), one per subset
+   sum q of the m = n - k later values and per map. A setting s below lo/u or above hi u
+   covers nothing of [lo, hi]. In one cluster, the covering settings z1 < ... < zM are
+   consecutive members, all >= lo/u, and their intervals cover a log length of at most
+   2h* + sum_i min(2h*, ln(z(i+1)/zi)) and at most 2h* + ln(zM/z1). Both f preserve
+   order and do not stretch log distances (d ln f / d ln x <= 1), and a gap g of P_k at
+   a point >= lo/u is at most ln(1 + g u/lo) in log, so a cluster covers at most
+   c_k = 2h* + min(sum over gaps g of P_k of min(2h*, ln(1 + g u/lo)), ln(1 + S_k u/lo)).
+   A cluster helps only if its lowest point f(B + q) <= hi u, i.e.
+   q <= max_f f^-1(hi u) - B =: Q; as each later value is >= rk, such a q is a sum of
+   at most t = floor(Q / rk) of them, so at most N = sum_{j <= min(m, t)} C(m, j)
+   clusters per map help. Covering needs N c_k >= ln(hi/lo) (summed over maps).
 
-Branches are explored largest resistor first (near-binary growth finds a good incumbent
-early); a branch is cut only by a bound, so the result equals an exhaustive search over
-the same candidates (tested against :func:`exhaustive_best`).
+The search is deterministic: the candidates are tried in a fixed order and a node budget
+(not a clock) decides when to stop and report ``proven=False`` with the best so far.
 """
 
 from __future__ import annotations
 
 import itertools
 import math
-import time
 from dataclasses import dataclass
 
 import numpy as np
 
 from nullsteer.ladder.coverage import log_settings, worst_log_error, worst_log_error_rows
 from nullsteer.ladder.eseries import ESeries
-from nullsteer.ladder.topology import LadderValues, Map, Topology
+from nullsteer.ladder.topology import LadderValues, Topology
 
 _EPS = 1e-12
+#: Default node budget of one search: far above what the benchmark ranges need
+#: (see benchmarks/bench_ladder.py), small enough to stop within seconds.
+DEFAULT_NODE_BUDGET = 400_000
 
 
 @dataclass(frozen=True)
@@ -51,7 +71,7 @@ class Candidates:
 @dataclass(frozen=True)
 class SearchResult:
     """Best build found, its nominal log error over the (shifted) range, nodes visited, and
-    whether the search finished (False: stopped by the time limit, best found so far)."""
+    whether the search finished (False: stopped by the node budget, best found so far)."""
 
     values: LadderValues
     log_error: float
@@ -81,19 +101,28 @@ def _cover_rows(y: np.ndarray, lo: float, up: float, down: float) -> np.ndarray:
     return np.where(bad[rows, first], prev[rows, first], u[:, -1])
 
 
+def _binomial_prefix(n: int) -> np.ndarray:
+    """table[m, t] = sum_{j <= t} C(m, j) for 0 <= m, t <= n."""
+    table = np.zeros((n + 1, n + 1))
+    for m in range(n + 1):
+        table[m] = np.cumsum([math.comb(m, j) for j in range(n + 1)])
+    return table
+
+
 class _Search:
     """Depth-first search over chain multisets; every base candidate is carried along
     as a vector, so the chain tree is walked once for all bases."""
 
     def __init__(self, lo: float, hi: float, n_chain: int, cands: np.ndarray,
-                 best_h: float, best: LadderValues | None) -> None:
+                 best_h: float, best: LadderValues | None, node_budget: int) -> None:
         self.lo, self.hi, self.n = lo, hi, n_chain
         self.la, self.lb = math.log(lo), math.log(hi)
         self.cands = cands
         self.cmax = float(cands[-1])
         self.best_h, self.best = best_h, best
         self.nodes = 0
-        self.deadline = math.inf
+        self.budget = node_budget
+        self.binom = _binomial_prefix(n_chain)
 
     def run(self, bases: np.ndarray, shunt: tuple[float, ...]) -> None:
         self.shunt = shunt
@@ -105,7 +134,7 @@ class _Search:
         p = self.shunt[0]
         return np.sort(np.concatenate((chain, chain * p / (chain + p)), axis=1), axis=1)
 
-    def _max_chain(self, y: np.ndarray) -> np.ndarray:
+    def _max_chain(self, y):
         """Largest chain value whose lowest setting is <= y (inverse of the smallest map)."""
         if not self.shunt:
             return y
@@ -118,10 +147,40 @@ class _Search:
             top = top + np.minimum(self.cmax, self._max_chain(top * up * up) - bases)
         return top * up >= self.hi
 
+    def _covered(self, x: np.ndarray, bases: np.ndarray, h: float) -> np.ndarray:
+        """Per base: log length of [lo, hi] covered by the settings f(B + x) at error h."""
+        z = np.log(np.maximum(self._settings(bases[:, None] + x[None, :]), 1e-9))
+        top = np.minimum(z + h, self.lb)
+        prev = np.concatenate((np.full((z.shape[0], 1), -np.inf), z[:, :-1] + h), axis=1)
+        bottom = np.maximum(np.maximum(z - h, self.la), prev)
+        return np.maximum(top - bottom, 0.0).sum(axis=1)
+
+    def _count_ok(self, x: np.ndarray, r: float, bases: np.ndarray, m: int, h: float,
+                  up: float) -> np.ndarray:
+        """Bound 3 for the child with chain sums ``x`` (ascending, last value ``r``) and
+        ``m`` values still to choose: per base, can the clusters cover the range?"""
+        scale = up / self.lo
+        gaps = np.log1p(np.diff(x) * scale)
+        c = 2.0 * h + min(float(np.minimum(gaps, 2.0 * h).sum()), math.log1p(x[-1] * scale))
+        need = (self.lb - self.la) * (1 - 1e-9)
+        maps = 1 + len(self.shunt)
+        if c * (2 ** m) * maps < need:
+            return np.zeros(bases.shape, dtype=bool)
+        first = self._covered(x, bases, h)          # the cluster q = 0, exactly
+        total = np.zeros(bases.shape)
+        limits = [self.hi * up] + ([float(self._max_chain(self.hi * up))] if self.shunt else [])
+        for lim in limits:
+            q_max = lim - bases
+            with np.errstate(invalid="ignore"):
+                t = np.where(q_max >= 0, np.floor(np.minimum(q_max / r, m)), -1)
+            t = np.where(np.isnan(t), m, t).astype(int)
+            total += np.where(t >= 0, self.binom[m][np.clip(t, 0, m)] - 1.0, 0.0)
+        return first + total * c >= need
+
     def _dfs(self, k: int, idx_min: int, x: np.ndarray, bases: np.ndarray,
              chosen: list[float]) -> None:
         self.nodes += 1
-        if self.nodes % 512 == 0 and time.perf_counter() > self.deadline:
+        if self.nodes > self.budget:
             raise _Stop
         y = self._settings(bases[:, None] + x[None, :])
         if k == self.n:
@@ -136,22 +195,26 @@ class _Search:
         limit = self._max_chain(_cover_rows(y, self.lo, up, 1.0 / up) * up) - bases
         hi_idx = int(np.searchsorted(self.cands, limit.max() * (1 + 1e-12), side="right"))
         top = bases + x[-1]
+        m = self.n - k - 1
         for idx in range(hi_idx - 1, idx_min - 1, -1):
             r = float(self.cands[idx])
-            reach = self._reachable(top + r, bases, self.n - k - 1, up)
+            reach = self._reachable(top + r, bases, m, up)
             if not reach.any():
                 break
             keep = reach & (limit * (1 + 1e-12) >= r)
+            if not keep.any():
+                continue
+            child = np.sort(np.concatenate((x, x + r)))
+            keep &= self._count_ok(child, r, bases, m, h, up)
             if keep.any():
-                self._dfs(k + 1, idx, np.sort(np.concatenate((x, x + r))), bases[keep],
-                          chosen + [r])
+                self._dfs(k + 1, idx, child, bases[keep], chosen + [r])
                 h = self.best_h - _EPS  # the incumbent may have improved
                 up = math.exp(h)
 
 
 def branch_and_bound(topology: Topology, lo_ohm: float, hi_ohm: float, relays: int,
                      cands: Candidates, incumbent: SearchResult | None = None,
-                     time_limit_s: float | None = None) -> SearchResult:
+                     node_budget: int = DEFAULT_NODE_BUDGET) -> SearchResult:
     """Optimal build over ``cands`` for the nominal range [lo_ohm, hi_ohm] (ideal contacts).
 
     Parameters
@@ -164,20 +227,20 @@ def branch_and_bound(topology: Topology, lo_ohm: float, hi_ohm: float, relays: i
     cands : Candidates
     incumbent : SearchResult, optional
         A known build to beat (default: plain binary weighting; never changes the result).
-    time_limit_s : float, optional
-        Stop after this long and return the best build so far with ``proven=False``.
+    node_budget : int
+        Stop after visiting this many nodes and return the best build so far with
+        ``proven=False`` (deterministic: the same inputs give the same result).
     """
     n_chain = topology.chain_relays(relays)
     chain = np.asarray(cands.chain_ohm, dtype=float)
     if incumbent is None:
         incumbent = binary_weighted(topology, lo_ohm, hi_ohm, relays, cands)
-    search = _Search(lo_ohm, hi_ohm, n_chain, chain, incumbent.log_error + 1e-9, incumbent.values)
+    search = _Search(lo_ohm, hi_ohm, n_chain, chain, incumbent.log_error + 1e-9,
+                     incumbent.values, node_budget)
     bases = np.array(sorted({0.0, *cands.base_ohm}))
     shunts: list[tuple[float, ...]] = [()]
     if topology.shunt_relays:
         shunts = [(p,) for p in sorted(cands.shunt_ohm, reverse=True)]
-    if time_limit_s is not None:
-        search.deadline = time.perf_counter() + time_limit_s
     proven = True
     try:
         for shunt in shunts:
