@@ -2,7 +2,8 @@
 
 This is the I/O side of :mod:`nullsteer.autonull` (which stays a pure search):
 
-* :func:`solve_station_model` solves the station's antenna model at one frequency;
+* :func:`solve_station_model` (from :mod:`nullsteer.antenna.station`) solves the station's
+  antenna model at one frequency;
 * :func:`predicted_optimum_ohm` is the search's start point;
 * :func:`build_virtual_receiver` makes the simulator's receiver for a station file;
 * :func:`autonull_on_controller` runs the search through a
@@ -26,6 +27,7 @@ from typing import Any
 
 import numpy as np
 
+from nullsteer.antenna.station import solve_station_model, station_elevations_deg
 from nullsteer.autonull import AutonullResult, Probe, Reference, Switcher, run_autonull
 from nullsteer.config import Station, load_station
 from nullsteer.errors import ConfigError, LinkError, MeasurementError, NullsteerError
@@ -33,27 +35,6 @@ from nullsteer.measure import Meter, Source
 from nullsteer.noise import NoiseCategory, db_to_ratio, parse_noise
 
 ProgressFn = Callable[[str, Probe | None, float | None], None]
-
-
-def solve_station_model(station: Station, freqs_hz: Sequence[float]) -> Any:
-    """The station's loop solved at ``freqs_hz`` (a PortSolution)."""
-    from nullsteer.antenna.ports import LoopModel
-    from nullsteer.antenna.specs import parse_antenna, parse_feed, parse_ground
-
-    model = LoopModel(parse_antenna(station.section("antenna", required=True)),
-                      parse_ground(station.section("ground")),
-                      parse_feed(station.section("feed")))
-    return model.solve(np.asarray(freqs_hz, dtype=float))
-
-
-def station_elevations_deg(station: Station) -> tuple[float, ...]:
-    """The ``[band]`` elevations of the signals to be nulled (default 10..60 deg)."""
-    from nullsteer.antenna.specs import parse_band
-
-    band = station.section("band")
-    if "freqs_mhz" not in band:
-        band = {**band, "freqs_mhz": 1.8}
-    return parse_band(band).elevations_deg
 
 
 def predicted_optimum_ohm(solution: Any, fed_end: str, elevations_deg: Sequence[float],

@@ -30,14 +30,11 @@ def _say(args: argparse.Namespace, text: str = "") -> None:
 def step_model(station: Station) -> tuple[Any, Any]:
     """Solve the station's loop over its band; returns (solution, needed range)."""
     from nullsteer.antenna.needed import needed_range
-    from nullsteer.antenna.ports import LoopModel
-    from nullsteer.antenna.specs import parse_antenna, parse_band, parse_feed, parse_ground
+    from nullsteer.antenna.station import station_loop
 
-    band = parse_band(station.section("band"))
-    model = LoopModel(parse_antenna(station.section("antenna", required=True)),
-                      parse_ground(station.section("ground")), parse_feed(station.section("feed")))
-    solution = model.solve(band.freqs_hz)
-    return solution, needed_range(solution, band.elevation_span_deg)
+    loop = station_loop(station)
+    solution = loop.solve()
+    return solution, needed_range(solution, loop.band.elevation_span_deg)
 
 
 def switching_order(events: list, since: int) -> str:

@@ -18,8 +18,8 @@ from nullsteer.bearing import FedEnd, null_bearing_deg
 from nullsteer.antenna.metrics import null_of, azimuth_pattern
 from nullsteer.antenna.needed import needed_range
 from nullsteer.antenna.ports import LoopModel
-from nullsteer.antenna.specs import (BandSpec, parse_antenna, parse_band,
-                                     parse_elevations_deg, parse_feed, parse_ground)
+from nullsteer.antenna.station import station_loop
+from nullsteer.antenna.specs import (BandSpec, parse_antenna, parse_elevations_deg, parse_feed, parse_ground)
 from nullsteer.cli.common import add_json_flag, print_json
 from nullsteer.config import load_station, parse_freqs_mhz
 from nullsteer.errors import ConfigError
@@ -82,14 +82,8 @@ def load_specs(args):
             if getattr(args, name) is not None:
                 flag = "--" + name.replace("_", "-")
                 raise ConfigError(flag, "cannot be combined with --config")
-        st = load_station(args.config)
-        antenna = parse_antenna(st.section("antenna", required=True))
-        ground = parse_ground(st.section("ground"))
-        band_t = st.section("band")
-        band = parse_band(band_t) if "freqs_mhz" in band_t else BandSpec(
-            (1.83e6,), parse_elevations_deg(band_t.get("elevation_deg", [10.0, 60.0]),
-                                            "band.elevation_deg"))
-        feed = parse_feed(st.section("feed"))
+        loop = station_loop(load_station(args.config))
+        antenna, ground, band, feed = loop.antenna, loop.ground, loop.band, loop.feed
     else:
         antenna, ground, band, feed = _quick_specs(args)
     freqs = band.freqs_hz
