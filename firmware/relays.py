@@ -10,7 +10,7 @@ Roles
 ``reverse``  energised = fed end B (the ends swap); de-energised = fed end A. One DPDT
              relay, or two relays (one per corner), all driven together.
 ``protect``  energised = receiver input shorted / disconnected; de-energised = listening.
-``open``     energised = termination disconnected (figure-8).
+``open``     energised = termination disconnected (no rear null).
 
 Switching order (:meth:`RelayBank.go`): protect on -> settle -> swap the ends -> settle ->
 ladder and open relays -> settle -> protect off. The protect step is taken whenever the

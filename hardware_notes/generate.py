@@ -84,7 +84,7 @@ def reversal_diagram(rev: str, open_: str) -> str:
         "       ---",
         "",
         f"  TERM ---o/ {open_} NC contact ---> top of the ladder (drawn above)",
-        "           energised = termination open: figure-8",
+        "           energised = termination open (no rear null)",
         "  bottom of the ladder ---> common return",
         "",
         "  Switching order (firmware): protect on, settle, swap the ends, settle,",

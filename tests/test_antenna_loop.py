@@ -82,7 +82,7 @@ def test_null_points_toward_terminated_end():
 
 
 def test_open_termination_is_figure_eight():
-    # Common practice: open termination gives a figure-8, F/B ≈ 0 dB.
+    # Common practice: with the termination out there is no rear null, F/B ≈ 0 dB.
     sol = flag("real", port_position="middle").solve([1.83e6, 3.6e6])
     fb = sol.fb_db(np.inf, "A", [10.0, 30.0, 50.0])
     assert np.all(np.abs(fb) < 0.5)
@@ -190,3 +190,27 @@ def test_rdf_is_peak_over_average_gain():
     peak = np.max(sol.gain(950.0, "A", np.full(el.shape, 65.0), el))
     assert sol.rdf_db(950.0, "A")[0] == pytest.approx(
         10 * np.log10(peak / sol.average_gain(950.0, "A")[0]), abs=1e-9)
+
+
+def test_shorted_termination_is_a_small_loop_with_broadside_nulls():
+    # Balanis §5.2: a small closed loop is a magnetic dipole on the loop's normal; its
+    # pattern goes as sin of the angle from that normal, so near the horizon it nulls
+    # broadside to the loop plane and peaks along the loop's axis (the figure-8). With
+    # the termination shorted the flag is such a closed loop. (Open, it is a broken
+    # loop whose vertical current does not cancel: no broadside null, nor a rear one.)
+    sol = flag("real").solve([1.83e6])
+    axis, broadside = 65.0, 155.0
+    g_short = sol.gain_dbi(0.0, "A", np.array([axis, broadside, axis + 180.0]), 5.0,
+                           polarisation="vertical")[0]
+    assert g_short[0] - g_short[1] > 10.0           # broadside null (sin 5° is -21 dB in
+                                                     # free space; real ground fills it)
+    assert abs(g_short[0] - g_short[2]) < 0.5        # symmetric: F/B ≈ 0 dB
+    g_open = sol.gain_dbi(np.inf, "A", np.array([axis, broadside]), 5.0,
+                          polarisation="vertical")[0]
+    assert abs(g_open[0] - g_open[1]) < 3.0          # no broadside null when open
+
+
+def test_unknown_polarisation_is_refused():
+    sol = flag("perfect").solve([1.83e6])
+    with pytest.raises(ValueError, match="polarisation"):
+        sol.gain_dbi(900.0, "A", 65.0, 20.0, polarisation="theta")

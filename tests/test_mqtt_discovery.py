@@ -97,7 +97,7 @@ def test_hub_stand_in_drives_the_board(make_broker):
             assert hub.state(end, end["options"][1]) is not None
             assert board.state()[0] == "B"
 
-            # switch: open termination (figure-8)
+            # switch: open termination
             sw = ents["switch:open"]
             hub.command(sw, sw["payload_on"])
             assert hub.state(sw, sw["state_on"]) is not None

@@ -20,7 +20,7 @@ dwell, see :class:`nullsteer.measure.Meter`); a setting is never switched to twi
 Fading that is common to all settings shifts whole readings, which the bracket tolerates
 because it compares neighbours read a few seconds apart.
 
-:func:`run_autonull` wraps the search with a reference reading (the figure-8 ``open``
+:func:`run_autonull` wraps the search with a reference reading (the ``open``
 state or the ``reversed`` fed end) so that ``null_db`` = best level - reference level
 (negative: how far the null pushes the signal down), and counts every relay switching.
 """
@@ -41,7 +41,7 @@ from nullsteer.errors import ConfigError
 class Reference(str, Enum):
     """What ``null_db`` is relative to."""
 
-    OPEN = "open"          # termination disconnected: figure-8, no null toward the signal
+    OPEN = "open"          # termination disconnected: no null toward the signal
     REVERSED = "reversed"  # fed ends swapped, same setting: the main lobe on the signal
     NONE = "none"
 

@@ -16,7 +16,7 @@ Entities of a board whose topics start with ``T = <base>/<id>/``:
 * ``number`` *termination* (ohms) — min/max from the ladder table, step = the smallest
   gap between neighbouring settings; ``T ohms`` / ``T ohms/set`` (only with a table);
 * ``select`` *preset* — preset names plus ``custom``; ``T preset`` / ``T preset/set``;
-* ``switch`` *open (figure-8)* — ``ON``/``OFF``; ``T open`` / ``T open/set`` (only
+* ``switch`` *open termination* — ``ON``/``OFF``; ``T open`` / ``T open/set`` (only
   when the board has an open relay).
 """
 
@@ -77,7 +77,7 @@ def entity_configs(prefix, base, dev_id, name, fw, model, end_options, span,
     preset_names : list of str
         Preset names; the select also offers ``custom`` (the state matches no preset).
     has_open : bool
-        Whether the board has an open relay (the figure-8 switch).
+        Whether the board has an open relay (the open switch).
     """
     device = {"identifiers": ["nullsteer_" + dev_id], "name": name, "model": model,
               "sw_version": fw, "manufacturer": "nullsteer (open source)"}
@@ -97,7 +97,7 @@ def entity_configs(prefix, base, dev_id, name, fw, model, end_options, span,
         preset["options"] = list(preset_names) + [CUSTOM]
         out.append((prefix + "/select/" + node + "/preset/config", preset))
     if has_open:
-        sw = _common(base, dev_id, "open", "Open termination (figure-8)", device)
+        sw = _common(base, dev_id, "open", "Open termination", device)
         sw.update({"payload_on": "ON", "payload_off": "OFF",
                    "state_on": "ON", "state_off": "OFF"})
         out.append((prefix + "/switch/" + node + "/open/config", sw))

@@ -68,21 +68,22 @@ def _floor_db(g_db: np.ndarray, peak_db: float, span_db: float) -> np.ndarray:
 
 def azimuth_figure(az_deg: np.ndarray, gains_dbi: dict[str, np.ndarray], elevation_deg: float,
                    freq_hz: float, null_bearing_deg: float | None = None,
-                   span_db: float = 40.0, title: str = "") -> Any:
+                   span_db: float = 60.0, title: str = "") -> Any:
     """Azimuth pattern at one elevation; curves keyed "A", "B" (fed end) and "open".
 
-    Gains in dBi; the radial axis shows ``span_db`` below the overall peak.
+    Gains in dBi; the radial axis shows ``span_db`` below the overall peak (the open loop
+    burns nothing in a termination, so it is usually some 20-30 dB above the terminated
+    patterns; all curves share one scale).
     """
     plt = _mpl()
     fig = plt.figure(figsize=(6.4, 6.4))
     ax = fig.add_subplot(projection="polar")
     ax.set_theta_zero_location("N")
     ax.set_theta_direction(-1)
-    # scale on the terminated patterns (+6 dB headroom); a stronger open pattern is clipped
-    peak = max(float(np.max(g)) for k, g in gains_dbi.items() if k != "open") + 6.0
+    peak = math.ceil((max(float(np.max(g)) for g in gains_dbi.values()) + 1.0) / 5.0) * 5.0
     lo = peak - span_db
     th = np.radians(np.append(az_deg, az_deg[0]))
-    labels = {"A": "fed end A", "B": "fed end B", "open": "open (figure-8)"}
+    labels = {"A": "fed end A", "B": "fed end B", "open": "open (no termination)"}
     for key, g in gains_dbi.items():
         r = np.minimum(_floor_db(np.append(g, g[0]), peak, span_db), peak) - lo
         ax.plot(th, r, color=_COLOURS.get(key), lw=2 if key != "open" else 1.4,

@@ -25,7 +25,7 @@ Keys of one preset:
     Termination resistance in ohms (> 0, at most 1 MOhm); required unless ``open``.
     The controller maps it to the nearest ladder setting.
 ``open``
-    ``true``: termination disconnected, figure-8 pattern. ``ohms``,
+    ``true``: termination disconnected (no rear null). ``ohms``,
     ``null_bearing_deg`` and ``bands`` are then not allowed; ``fed_end`` is optional
     (default ``"A"``, so that the target stays an absolute state).
 ``bands``
@@ -111,7 +111,7 @@ class Target:
     ohms : float or None
         Termination resistance, ohms; None when ``open``.
     open : bool
-        Termination disconnected (figure-8).
+        Termination disconnected (no rear null).
     """
 
     fed_end: End
@@ -119,9 +119,9 @@ class Target:
     open: bool
 
     def describe(self) -> str:
-        """Short text such as ``"fed B, 900 ohm"`` or ``"fed A, open (figure-8)"``."""
+        """Short text such as ``"fed B, 900 ohm"`` or ``"fed A, open"``."""
         if self.open:
-            return f"fed {self.fed_end.value}, open (figure-8)"
+            return f"fed {self.fed_end.value}, open"
         return f"fed {self.fed_end.value}, {self.ohms:g} ohm"
 
     def to_json(self) -> dict[str, Any]:
@@ -141,7 +141,7 @@ class Preset:
     ohms : float or None
         Default termination, ohms; None when ``open``.
     open : bool
-        Figure-8 preset.
+        Open-termination preset.
     bands : tuple of BandSetting
         Per-band overrides, sorted by lower edge.
     null_bearing_deg : float or None

@@ -147,7 +147,9 @@ class PortSolution:
         [1, 2·Re v, 2·Im v, |v|²] · basis, so every termination costs four real
         multiply-adds per direction.
         """
-        pols = {"vertical": [0], "horizontal": [1]}.get(pol, [0, 1])
+        pols = {"vertical": [0], "horizontal": [1], "total": [0, 1]}.get(pol)
+        if pols is None:
+            raise ValueError(f"polarisation must be total, vertical or horizontal, got {pol!r}")
         a, b = fields[:, pols, 0], fields[:, pols, 1]
         pab = np.sum(a * np.conj(b), 1)
         return np.stack([np.sum(a.real ** 2 + a.imag ** 2, 1), pab.real, pab.imag,

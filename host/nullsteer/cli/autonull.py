@@ -3,7 +3,7 @@
 ``null_db`` in the output is the best level minus the reference reading: with
 ``--reference reversed`` (default) the same setting with the fed ends swapped, i.e. the
 signal on the main lobe (a measured front-to-back on that signal); with ``open`` the
-figure-8 (termination disconnected); ``none`` skips it (one switching fewer).
+open termination (disconnected); ``none`` skips it (one switching fewer).
 """
 
 from __future__ import annotations

@@ -56,7 +56,7 @@ def end_a_bearing(config_path: str | None, flag: str) -> float:
 def describe(status: BoardStatus, end_a_deg: float | None = None) -> str:
     """One human line for a board state."""
     s = status.state
-    term = "open (figure-8)" if s.open else (
+    term = "open (no termination)" if s.open else (
         f"{s.ohms:.1f} ohm (mask {s.mask})" if s.ohms is not None else f"mask {s.mask}")
     text = f"fed end {s.fed_end.value}, termination {term}"
     if end_a_deg is not None and not s.open:
@@ -240,7 +240,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     term.add_argument("--mask", type=_mask, help="ladder relay mask (bit i = relay i)")
     term.add_argument("--ohms", type=positive_float("--ohms"),
                       help="wanted termination; the nearest ladder setting by ratio is used")
-    term.add_argument("--open", action="store_true", help="disconnect the termination (figure-8)")
+    term.add_argument("--open", action="store_true", help="disconnect the termination (no rear null)")
     add_json_flag(p)
     p.set_defaults(func=run_set)
 
