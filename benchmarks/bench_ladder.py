@@ -1,6 +1,6 @@
 """Ladder optimiser figures: time, nodes, optimum vs exhaustive and vs binary weighting.
 
-Run: .venv/bin/python benchmarks/bench_ladder.py [max_relays] [time_limit_s]
+Run: .venv/bin/python benchmarks/bench_ladder.py [max_relays] [node_budget]
 Prints, per relay count, the branch-and-bound time and nodes, whether it finished,
 its worst-case error and that of plain binary weighting (same candidates), and for
 small counts the exhaustive search's time and error. No assertions.
@@ -8,6 +8,7 @@ small counts the exhaustive search's time and error. No assertions.
 
 from __future__ import annotations
 
+import itertools
 import math
 import sys
 import time
@@ -23,17 +24,18 @@ def pct(h: float) -> float:
 
 def main() -> None:
     max_relays = int(sys.argv[1]) if len(sys.argv) > 1 else 8
-    limit = float(sys.argv[2]) if len(sys.argv) > 2 else 60.0
-    lo, hi = 400.0, 2500.0
-    print(f"range {lo:g}..{hi:g} ohm, E24 candidates, nominal worst error (ideal contacts)")
-    print(f"{'topology':16} {'n':>2} {'bnb s':>8} {'nodes':>9} {'done':>5} {'bnb %':>7} "
-          f"{'binary %':>9} {'exh s':>7} {'exh %':>7}")
-    for name in ("series-shorting", "series-shunt"):
+    budget = int(sys.argv[2]) if len(sys.argv) > 2 else 200_000
+    print("nominal worst error (ideal contacts); ranges: benchmark and the demo station's")
+    print(f"{'range':>10} {'ser':>3} {'topology':16} {'n':>2} {'bnb s':>8} {'nodes':>9} "
+          f"{'done':>5} {'bnb %':>7} {'binary %':>9} {'exh s':>7} {'exh %':>7}")
+    for (lo, hi), es, name in itertools.product(((400.0, 2500.0), (1030.0, 1889.0)),
+                                                ("E24", "E12"),
+                                                ("series-shorting", "series-shunt")):
         t = TOPOLOGIES[name]
         for n in range(t.min_relays(), max_relays + 1):
-            cands = default_candidates(SERIES["E24"], lo, hi, n)
+            cands = default_candidates(SERIES[es], lo, hi, n)
             t0 = time.perf_counter()
-            r = branch_and_bound(t, lo, hi, n, cands, time_limit_s=limit)
+            r = branch_and_bound(t, lo, hi, n, cands, node_budget=budget)
             dt = time.perf_counter() - t0
             b = binary_weighted(t, lo, hi, n, cands)
             ex_s = ex_p = ""
@@ -42,7 +44,7 @@ def main() -> None:
                 t0 = time.perf_counter()
                 e = exhaustive_best(t, lo, hi, n, small)
                 ex_s, ex_p = f"{time.perf_counter() - t0:7.2f}", f"{pct(e.log_error):7.3f}"
-            print(f"{name:16} {n:2d} {dt:8.3f} {r.nodes:9d} {str(r.proven):>5} "
+            print(f"{lo:4.0f}-{hi:4.0f} {es:>3} {name:16} {n:2d} {dt:8.3f} {r.nodes:9d} {str(r.proven):>5} "
                   f"{pct(r.log_error):7.3f} {pct(b.log_error):9.3f} {ex_s:>7} {ex_p:>7}",
                   flush=True)
     # a 5-relay exhaustive comparison on a reduced candidate window (E12 22..2200 ohm)

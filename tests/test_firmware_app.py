@@ -43,7 +43,8 @@ def test_boot_event_and_info(board):
     assert info["proto"] == "1" and info["bits"] == "7" and info["table"] == "128"
     assert info["roles"] == "ladder,reverse,protect,open"
     st = req(board, 2, "STATUS").fields
-    assert (st["end"], st["mask"], st["open"], st["ohms"]) == ("A", "0", "0", "390.0")
+    mask0 = dict((m, r) for m, r in json.loads(EXAMPLE.read_text())["ladder"]["table"])[0]
+    assert (st["end"], st["mask"], st["open"], st["ohms"]) == ("A", "0", "0", "%.1f" % mask0)
     assert board.state() == ("A", 0, False)
 
 
@@ -54,8 +55,8 @@ BAD_SET = [  # (fields, code): protocol rules of firmware/PROTOCOL.md
     ((("mask", 1), ("open", 0)), "MISSING"),
     ((("end", "A"), ("mask", 1), ("open", 2)), "RANGE"),
     ((("end", "A"), ("mask", 1), ("ohms", "900"), ("open", 0)), "KEY"),
-    ((("end", "A"), ("ohms", "150"), ("open", 0)), "RANGE"),  # < 390 / 2
-    ((("end", "A"), ("ohms", "6000"), ("open", 0)), "RANGE"),  # > 2517 * 2
+    ((("end", "A"), ("ohms", "150"), ("open", 0)), "RANGE"),  # < table's lowest / 2
+    ((("end", "A"), ("ohms", "9000"), ("open", 0)), "RANGE"),  # > table's highest * 2
     ((("end", "A"), ("ohms", "nan"), ("open", 0)), "RANGE"),
     ((("end", "A"), ("mask", "1.5"), ("open", 0)), "FORMAT"),
 ]
@@ -138,7 +139,8 @@ def test_ohms_picks_nearest_by_ratio_example_table(board):
     masks = np.array([m for m, _ in table])
     ohms = np.array([r for _, r in table])
     rng = np.random.default_rng(7)
-    for seq, r in enumerate(np.exp(rng.uniform(np.log(250), np.log(4000), 60)), start=1):
+    lo, hi = ohms.min() / 1.9, ohms.max() * 1.9  # requests within the accepted span (x2)
+    for seq, r in enumerate(np.exp(rng.uniform(np.log(lo), np.log(hi), 60)), start=1):
         want = masks[np.argmin(np.abs(np.log(r / ohms)))]
         reply = req(board, seq, "SET", ("end", "A"), ("ohms", "%.3f" % r), ("open", 0))
         assert reply.fields["mask"] == str(want), r

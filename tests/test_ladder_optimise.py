@@ -72,3 +72,43 @@ def test_worst_error_matches_dense_sampling():
     step = math.log(2500 / 400) / (r.size - 1)
     assert dense - 1e-12 <= worst_log_error(s, 400, 2500) <= dense + step
     assert math.isclose(worst_log_error(np.array([1000.0]), 1000, 1000 * math.e ** 2), 2.0)
+
+
+def _random_cases(seed=2026, count=8):
+    # Seeded random small problems: both topologies, E12 and E24, a tolerance shift
+    # (coverage.tolerance_shift) applied to the range as design_ladder does.
+    from nullsteer.ladder.coverage import tolerance_shift
+    rng = np.random.default_rng(seed)
+    out = []
+    for i in range(count):
+        topo = ("series-shorting", "series-shunt")[i % 2]
+        series = ("E12", "E24")[(i // 2) % 2]
+        relays = int(rng.integers(2, 5 if topo == "series-shorting" else 4))
+        lo = float(rng.uniform(200, 1200))
+        hi = lo * float(rng.uniform(1.5, 6.0))
+        shift, _ = tolerance_shift(float(rng.choice([1.0, 5.0, 10.0])))
+        out.append((topo, relays, lo * shift, hi * shift, series))
+    return out
+
+
+@pytest.mark.parametrize("topo,relays,lo,hi,series", _random_cases())
+def test_random_small_cases_equal_exhaustive(topo, relays, lo, hi, series):
+    # Reference: exhaustive enumeration (no bounds, so it cannot miss the optimum).
+    t = TOPOLOGIES[topo]
+    top = hi if topo == "series-shorting" else 4 * hi
+    cands = _cands(series, lo / 16, hi, top)
+    bnb = branch_and_bound(t, lo, hi, relays, cands, node_budget=10**7)
+    ex = exhaustive_best(t, lo, hi, relays, cands)
+    assert bnb.proven
+    assert bnb.log_error == pytest.approx(ex.log_error, abs=1e-12)
+
+
+def test_search_is_deterministic_and_budget_limited():
+    # Same inputs, same design; a budget too small to finish says so (not proven).
+    t = TOPOLOGIES["series-shorting"]
+    cands = _cands("E24", 10, 2500)
+    a = branch_and_bound(t, 400, 2500, 5, cands, node_budget=50)
+    b = branch_and_bound(t, 400, 2500, 5, cands, node_budget=50)
+    assert a == b and not a.proven and a.nodes == 51
+    full = branch_and_bound(t, 400, 2500, 5, cands)
+    assert full.proven and full.log_error <= a.log_error

@@ -22,16 +22,19 @@ _CSS = ("body{font-family:sans-serif;max-width:60em;margin:2em auto;color:#222}"
         ".fig{display:inline-block;width:48%;vertical-align:top}")
 
 
-def board_ladder(station: Station) -> dict[str, Any]:
-    """The ``"ladder"`` block of the first device's board config (empty if none)."""
+def board_ladder(station: Station, board_config: str | Path | None = None) -> dict[str, Any]:
+    """The ``"ladder"`` block of ``board_config``, else of the first device's board config
+    (empty if none)."""
     from nullsteer.devices import parse_devices
 
-    for dev in parse_devices(station):
-        if dev.board_config is not None and dev.board_config.exists():
+    paths = [Path(board_config)] if board_config is not None else [
+        d.board_config for d in parse_devices(station) if d.board_config is not None]
+    for path in paths:
+        if path.exists():
             try:
-                cfg = json.loads(dev.board_config.read_text())
+                cfg = json.loads(path.read_text())
             except ValueError as exc:
-                raise ConfigError(str(dev.board_config), f"board config is not JSON: {exc}") from None
+                raise ConfigError(str(path), f"board config is not JSON: {exc}") from None
             return dict(cfg.get("ladder") or {})
     return {}
 
@@ -44,7 +47,8 @@ def _table(headers: Sequence[str], rows: Sequence[Sequence[Any]]) -> str:
 
 
 def write_report(station: Station, out_dir: str | Path, fed_end: str = "A",
-                 autonull: dict[str, Any] | None = None) -> Path:
+                 autonull: dict[str, Any] | None = None,
+                 board_config: str | Path | None = None) -> Path:
     """Write the report; returns the path of ``index.html``.
 
     Parameters
@@ -57,13 +61,15 @@ def write_report(station: Station, out_dir: str | Path, fed_end: str = "A",
         Fed end for the patterns and the noise budget.
     autonull : dict or None
         An auto-null result (``AutonullResult.to_json()``) to include with its path plot.
+    board_config : path or None
+        Board config whose ladder block is reported (default: the first device's).
     """
     from nullsteer.noise import model_noise_budgets, parse_noise
     from nullsteer.plots import save_figure, station_figure, station_plot_data
 
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
-    ladder = board_ladder(station)
+    ladder = board_ladder(station, board_config)
     table = [(int(m), float(r)) for m, r in ladder.get("table", [])]
     data = station_plot_data(station, fed_end, table=table)
     kinds = ["azimuth", "elevation", "fb", "range"] + (["path"] if autonull else [])

@@ -116,7 +116,8 @@ def step_schedule(args: argparse.Namespace, station: Station) -> list[dict[str, 
 
 def run(args: argparse.Namespace) -> int:
     from nullsteer.devices import parse_devices
-    from nullsteer.ladder import design_ladder, parse_ladder, write_board_ladder
+    from nullsteer.ladder import write_board_ladder
+    from nullsteer.ladder.station import design_for_station
     from nullsteer.report import write_report
 
     station = load_station(args.config)
@@ -132,17 +133,18 @@ def run(args: argparse.Namespace) -> int:
                f"{need.lo_ohm:.0f}..{need.hi_ohm:.0f} ohm")
 
     _say(args, "== 2. the relay ladder")
-    spec = parse_ladder(station.section("ladder"))
-    lo, hi = spec.range_ohm or (need.lo_ohm, need.hi_ohm)
-    design = design_ladder(lo, hi, spec.relays or 7, spec.series, spec.tolerance_pct,
-                           spec.topology, parasitics=spec.parasitics, time_limit_s=2.0)
-    summary["ladder"] = {"resistors_ohm": list(design.resistors_ohm),
-                         "worst_step_pct": design.worst_step_pct,
-                         "worst_case_error_pct": design.worst_case_error_pct}
-    _say(args, f"  {len(design.resistors_ohm)} relays, resistors "
+    planned = design_for_station(station, solution=solution, needed=need)
+    design = planned.design
+    summary["ladder"] = planned.to_json()
+    _say(args, f"  {len(design.resistors_ohm)} relays, base {design.base_ohm:g} ohm + "
                + ", ".join(f"{r:g}" for r in design.resistors_ohm)
                + f" ohm; worst step {design.worst_step_pct:.1f} %, worst case "
-                 f"{design.worst_case_error_pct:.1f} % with tolerance")
+                 f"{design.worst_case_error_pct:.1f} % with tolerance "
+                 f"({'proven optimal' if design.proven_optimal else 'best found, not proven'})")
+    if planned.null_loss is not None:
+        loss = planned.null_loss
+        _say(args, f"  predicted null loss from the steps: worst {loss.worst_db:.2f} dB "
+                   f"(nulls capped at {loss.ceiling_db:g} dB; uncapped {loss.worst_raw_db:.1f} dB)")
     devices = parse_devices(station)
     source = next((d.board_config for d in devices if d.board_config is not None), None)
     if source is None:
@@ -169,7 +171,8 @@ def run(args: argparse.Namespace) -> int:
     summary["schedule"] = step_schedule(args, station)
 
     _say(args, "== 6. report")
-    page = write_report(station, args.out, fed_end=result.fed_end, autonull=result.to_json())
+    page = write_report(station, args.out, fed_end=result.fed_end, autonull=result.to_json(),
+                        board_config=board_config)
     (args.out / "demo.json").write_text(json.dumps(summary, indent=2, default=str) + "\n")
     summary["report"] = str(page)
     _say(args, f"  {page}")

@@ -18,8 +18,8 @@ from nullsteer.ladder.coverage import (ratio_error_pct, tolerance_shift, worst_c
                                        worst_log_error, worst_step_pct)
 from nullsteer.ladder.eseries import get_series
 from nullsteer.ladder.network import Parasitics, network_impedance_ohm
-from nullsteer.ladder.optimise import (Candidates, SearchResult, binary_weighted,
-                                       branch_and_bound, default_candidates)
+from nullsteer.ladder.optimise import (DEFAULT_NODE_BUDGET, Candidates, SearchResult,
+                                       branch_and_bound, default_candidates, scaled_binary_start)
 from nullsteer.ladder.topology import LadderValues, Topology, get_topology
 
 MAX_RELAYS = 12
@@ -57,7 +57,7 @@ class LadderDesign:
     nominal_error_pct : float
         The same with exact resistor values.
     proven_optimal : bool
-        The search finished (False: stopped by its time limit).
+        The search finished (False: stopped by its node budget; the best build found).
     search_nodes : int
     search_time_s : float
     """
@@ -153,24 +153,26 @@ _NAMES = {"range": "range_ohm", "relays": "relays", "tolerance": "tolerance_pct"
 
 
 def _search(topology: Topology, lo: float, hi: float, relays: int, cands: Candidates,
-            time_limit_s: float | None) -> SearchResult:
-    inc = binary_weighted(topology, lo, hi, relays, cands)
+            node_budget: int) -> SearchResult:
+    inc = scaled_binary_start(topology, lo, hi, relays, cands)
     if topology.shunt_relays and relays > 1:
         # the best chain one relay shorter, with the weakest shunt, is a valid start
         plain = get_topology("series-shorting")
-        sub = branch_and_bound(plain, lo, hi, relays - 1, cands, time_limit_s=time_limit_s)
+        sub = branch_and_bound(plain, lo, hi, relays - 1, cands, node_budget=node_budget)
         v = LadderValues(sub.values.base_ohm, sub.values.chain_ohm, (max(cands.shunt_ohm),))
         h = worst_log_error(topology.ideal_settings_ohm(v), lo, hi)
         if h < inc.log_error:
             inc = SearchResult(v, h, 0)
-    return branch_and_bound(topology, lo, hi, relays, cands, inc, time_limit_s)
+    return branch_and_bound(topology, lo, hi, relays, cands, inc, node_budget)
 
 
 def design_ladder(r_min_ohm: float, r_max_ohm: float, relays: int | None, series: str = "E24",
                   tolerance_pct: float | None = None, topology: str = "series-shorting", *,
                   parasitics: Parasitics | None = None, target_error_pct: float = 5.0,
-                  candidates: Candidates | None = None, time_limit_s: float | None = None,
-                  names: dict[str, str] | None = None) -> LadderDesign:
+                  candidates: Candidates | None = None,
+                  node_budget: int = DEFAULT_NODE_BUDGET, time_limit_s: float | None = None,
+                  names: dict[str, str] | None = None,
+                  counts: list[int] | None = None) -> LadderDesign:
     """Design the ladder for a wanted termination range.
 
     Parameters
@@ -191,11 +193,18 @@ def design_ladder(r_min_ohm: float, r_max_ohm: float, relays: int | None, series
         Worst-case error goal for ``relays=None``, percent.
     candidates : Candidates, optional
         Values the search may use (default: the series over the range).
+    node_budget : int
+        Nodes one search may visit; a design from a stopped search has ``proven_optimal``
+        False. A budget rather than a clock keeps the design reproducible.
     time_limit_s : float, optional
-        Per-search time limit; a design from a stopped search has ``proven_optimal`` False.
+        Not used any more (the node budget replaced the clock); accepted so that older
+        callers keep working.
     names : dict, optional
         Key names for error messages (``range``, ``relays``, ``tolerance``, ``series``,
         ``topology``, ``target``), e.g. the CLI's flags.
+    counts : list of int, optional
+        Relay counts tried in order for ``relays=None`` (default: the topology's minimum
+        up to MAX_RELAYS).
     """
     nm = {**_NAMES, **(names or {})}
     topo = get_topology(topology, nm["topology"])
@@ -208,16 +217,20 @@ def design_ladder(r_min_ohm: float, r_max_ohm: float, relays: int | None, series
     par = parasitics if parasitics is not None else Parasitics()
     shift, _ = tolerance_shift(tol)
     lo, hi = r_min_ohm * shift, r_max_ohm * shift
-    counts = [relays] if relays is not None else list(range(topo.min_relays(), MAX_RELAYS + 1))
+    if relays is not None:
+        counts = [relays]
+    elif counts is None:
+        counts = list(range(topo.min_relays(), MAX_RELAYS + 1))
     design = None
     for n in counts:
         cands = candidates or default_candidates(es, lo, hi, n)
         t0 = time.perf_counter()
-        result = _search(topo, lo, hi, n, cands, time_limit_s)
+        result = _search(topo, lo, hi, n, cands, node_budget)
         design = evaluate(topo, result.values, r_min_ohm, r_max_ohm, tol, par, es.name,
                           result, time.perf_counter() - t0)
         if relays is not None or design.worst_case_error_pct <= target_error_pct:
             return design
+    assert design is not None
     raise ConfigError(nm["relays"], f"no {topo.name.value} ladder of up to {MAX_RELAYS} relays "
                       f"meets {target_error_pct:g} % (best {design.worst_case_error_pct:.2f} %)")
 
@@ -235,7 +248,7 @@ def settings_impedance_ohm(design: LadderDesign, freq_hz: np.ndarray | float,
 
 
 def open_impedance_ohm(design: LadderDesign, freq_hz: np.ndarray | float) -> np.ndarray:
-    """Impedance presented in figure-8 mode (open relay energised), per setting and frequency."""
+    """Impedance presented in open mode (open relay energised), per setting and frequency."""
     return settings_impedance_ohm(design, freq_hz, open_mode=True)
 
 

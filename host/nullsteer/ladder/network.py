@@ -10,7 +10,7 @@ One tree describes one ladder build. The same tree gives
 
 A setting is an integer bit mask: bit ``i`` drives ladder relay ``i``. Contacts of the
 role relays (open, reversal) are not in the mask; they are closed in every ladder
-setting, and the open relay's contact opens in figure-8 mode.
+setting, and the open relay's contact opens in open mode.
 """
 
 from __future__ import annotations
@@ -25,7 +25,7 @@ class Role(str, Enum):
     """What drives a relay contact."""
 
     LADDER = "ladder"    # a bit of the setting mask
-    OPEN = "open"        # open-termination relay (figure-8 mode)
+    OPEN = "open"        # open-termination relay
     REVERSE = "reverse"  # reversal relay pole in the termination path
 
 
@@ -152,7 +152,7 @@ def network_impedance_ohm(tree: Node, masks: np.ndarray | list[int], freq_hz: np
     r_scale : float
         Factor applied to every resistor (1 ± tolerance for worst-case builds).
     open_mode : bool
-        True: the open relay is energised (figure-8 mode).
+        True: the open relay is energised (open mode).
 
     Returns
     -------

@@ -8,6 +8,14 @@ board would pick for the optimum (nearest by ratio of the nominal table, or, wit
 remote line, nearest seen impedance); its actual impedance at that frequency includes the
 relay parasitics, the line (if any) and the resistor tolerance extremes (all parts at
 -t, nominal, +t). The loss is F/B(optimum) - F/B(setting), worst of the three builds.
+
+Null depth ceiling: at the exact optimum for one elevation the modelled null is
+practically infinitely deep, so any error "costs" a lot against infinity. Both F/B
+values are therefore capped at ``ceiling_db`` (default 30 dB) before taking the
+difference: it is common practice (from memory) that nulls on sky-wave signals deeper
+than about 30 dB are not kept for long, because the arriving elevation and polarisation
+wander. The capped loss is the figure the 3 dB goal applies to; the raw loss is reported
+beside it.
 """
 
 from __future__ import annotations
@@ -19,6 +27,9 @@ import numpy as np
 from nullsteer.ladder.design import LadderDesign, settings_impedance_ohm
 from nullsteer.ladder.remote import RemoteSpec, seen_termination_ohm
 
+#: Deepest null counted, dB (common practice, from memory: see the module docstring).
+DEFAULT_CEILING_DB = 30.0
+
 
 @dataclass(frozen=True)
 class NullLoss:
@@ -29,20 +40,30 @@ class NullLoss:
     freqs_hz : ndarray (F,)
     elevations_deg : ndarray (E,)
     loss_db : dict
-        Fed end -> ndarray (F, E) of F/B lost, dB (nan where open is the optimum).
+        Fed end -> ndarray (F, E) of F/B lost with both F/B capped at ``ceiling_db``, dB
+        (nan where open is the optimum).
     worst_db : float
+        Worst capped loss (the goal figure), dB.
+    raw_loss_db : dict
+        The same without the cap.
+    worst_raw_db : float
+    ceiling_db : float
     """
 
     freqs_hz: np.ndarray
     elevations_deg: np.ndarray
     loss_db: dict
     worst_db: float
+    raw_loss_db: dict
+    worst_raw_db: float
+    ceiling_db: float = DEFAULT_CEILING_DB
 
     def to_json(self) -> dict:
-        return {"worst_db": self.worst_db,
+        return {"worst_db": self.worst_db, "worst_raw_db": self.worst_raw_db,
+                "ceiling_db": self.ceiling_db,
                 "freqs_mhz": (self.freqs_hz / 1e6).tolist(),
                 "elevations_deg": self.elevations_deg.tolist(),
-                "loss_db": {k: np.where(np.isfinite(v), v, None).tolist()
+                "loss_db": {k: [[float(x) if np.isfinite(x) else None for x in row] for row in v]
                             for k, v in self.loss_db.items()}}
 
 
@@ -55,8 +76,15 @@ def _impedances(design: LadderDesign, f: np.ndarray, remote: RemoteSpec | None) 
     return out
 
 
+def _worst(table: dict) -> float:
+    finite = [v[np.isfinite(v)] for v in table.values()]
+    allv = np.concatenate(finite) if finite else np.zeros(0)
+    return float(allv.max()) if allv.size else float("nan")
+
+
 def predicted_null_loss(design: LadderDesign, solution, elevations_deg, fed_ends=("A", "B"),
-                        remote: RemoteSpec | None = None) -> NullLoss:
+                        remote: RemoteSpec | None = None,
+                        ceiling_db: float = DEFAULT_CEILING_DB) -> NullLoss:
     """F/B lost to quantisation at each frequency and elevation, dB.
 
     Parameters
@@ -70,6 +98,8 @@ def predicted_null_loss(design: LadderDesign, solution, elevations_deg, fed_ends
         Fed ends to evaluate (values accepted by the solution, e.g. "A", "B").
     remote : RemoteSpec, optional
         The line to a remote ladder.
+    ceiling_db : float
+        Cap on both F/B values for the capped loss, dB (see the module docstring).
     """
     f = np.asarray(solution.freqs_hz, dtype=float)
     el = np.atleast_1d(np.asarray(elevations_deg, dtype=float))
@@ -77,9 +107,11 @@ def predicted_null_loss(design: LadderDesign, solution, elevations_deg, fed_ends
     nominal_dc = np.array([s.ohms for s in design.settings])
     rows = np.arange(f.size)
     table: dict = {}
+    raw_table: dict = {}
     for fe in fed_ends:
         r_opt = np.asarray(solution.optimum_termination_ohm(fe, el, each=True), dtype=float)
         loss = np.full((f.size, el.size), np.nan)
+        raw = np.full((f.size, el.size), np.nan)
         for j, e in enumerate(el):
             r = r_opt[:, j]
             ok = np.isfinite(r) & (r > 0)
@@ -92,11 +124,14 @@ def predicted_null_loss(design: LadderDesign, solution, elevations_deg, fed_ends
                 pick = np.argmin(np.abs(zs[1] - rr[None, :]), axis=0)
             fb_opt = np.asarray(solution.fb_db(rr, fe, e), dtype=float).reshape(f.size)
             worst = np.zeros(f.size)
+            worst_raw = np.zeros(f.size)
             for z in zs:
                 fb = np.asarray(solution.fb_db(z[pick, rows], fe, e), dtype=float).reshape(f.size)
-                worst = np.maximum(worst, fb_opt - fb)
+                worst = np.maximum(worst, np.minimum(fb_opt, ceiling_db)
+                                   - np.minimum(fb, ceiling_db))
+                worst_raw = np.maximum(worst_raw, fb_opt - fb)
             loss[:, j] = np.where(ok, worst, np.nan)
-        table[str(getattr(fe, "value", fe))] = loss
-    finite = [v[np.isfinite(v)] for v in table.values()]
-    allv = np.concatenate(finite) if finite else np.zeros(0)
-    return NullLoss(f, el, table, float(allv.max()) if allv.size else float("nan"))
+            raw[:, j] = np.where(ok, worst_raw, np.nan)
+        name = str(getattr(fe, "value", fe))
+        table[name], raw_table[name] = loss, raw
+    return NullLoss(f, el, table, _worst(table), raw_table, _worst(raw_table), ceiling_db)

@@ -54,9 +54,9 @@ from nullsteer.ladder.eseries import ESeries
 from nullsteer.ladder.topology import LadderValues, Topology
 
 _EPS = 1e-12
-#: Default node budget of one search: far above what the benchmark ranges need
-#: (see benchmarks/bench_ladder.py), small enough to stop within seconds.
-DEFAULT_NODE_BUDGET = 400_000
+#: Default node budget of one search (a few seconds here; benchmarks/bench_ladder.py
+#: shows how many nodes each relay count needs to finish).
+DEFAULT_NODE_BUDGET = 5_000
 
 
 @dataclass(frozen=True)
@@ -155,27 +155,56 @@ class _Search:
         bottom = np.maximum(np.maximum(z - h, self.la), prev)
         return np.maximum(top - bottom, 0.0).sum(axis=1)
 
-    def _count_ok(self, x: np.ndarray, r: float, bases: np.ndarray, m: int, h: float,
-                  up: float) -> np.ndarray:
+    def _count_ok(self, x: np.ndarray, r: float, bases: np.ndarray, m: int, h: float
+                  ) -> np.ndarray:
         """Bound 3 for the child with chain sums ``x`` (ascending, last value ``r``) and
         ``m`` values still to choose: per base, can the clusters cover the range?"""
-        scale = up / self.lo
-        gaps = np.log1p(np.diff(x) * scale)
-        c = 2.0 * h + min(float(np.minimum(gaps, 2.0 * h).sum()), math.log1p(x[-1] * scale))
         need = (self.lb - self.la) * (1 - 1e-9)
-        maps = 1 + len(self.shunt)
-        if c * (2 ** m) * maps < need:
-            return np.zeros(bases.shape, dtype=bool)
-        first = self._covered(x, bases, h)          # the cluster q = 0, exactly
-        total = np.zeros(bases.shape)
-        limits = [self.hi * up] + ([float(self._max_chain(self.hi * up))] if self.shunt else [])
-        for lim in limits:
-            q_max = lim - bases
-            with np.errstate(invalid="ignore"):
-                t = np.where(q_max >= 0, np.floor(np.minimum(q_max / r, m)), -1)
-            t = np.where(np.isnan(t), m, t).astype(int)
-            total += np.where(t >= 0, self.binom[m][np.clip(t, 0, m)] - 1.0, 0.0)
-        return first + total * c >= need
+        total = self._covered(x, bases, h)             # the clusters q = 0, exactly
+        if m == 0:
+            return total >= need
+        floor = self.lo * math.exp(-h)                  # lowest setting that covers anything
+        g = np.diff(x)                                  # gaps of P_k, at their lower ends x[:-1]
+        j = np.arange(1, m + 1, dtype=float)
+        loc = bases[None, :] + j[:, None] * r           # (m, nb): lowest q of j later values
+        where = np.maximum(floor, loc[:, :, None] + x[None, None, :-1])
+        gap_sum = np.minimum(np.log1p(g / where), 2.0 * h).sum(axis=2)
+        span = np.log1p(x[-1] / np.maximum(floor, loc))
+        c = 2.0 * h + np.minimum(gap_sum, span)         # (m, nb)
+        count = np.array([math.comb(m, int(i)) for i in j])[:, None]
+        for lowest in self._map_values(loc):
+            room = self.lb - np.maximum(self.la, np.log(np.maximum(lowest, 1e-9)) - h)
+            total = total + (count * np.clip(np.minimum(c, room), 0.0, None)).sum(axis=0)
+        return total >= need
+
+    def _last(self, idx_min: int, hi_idx: int, limit: np.ndarray, x: np.ndarray,
+              bases: np.ndarray, chosen: list[float]) -> None:
+        """The last chain value: every allowed candidate and base evaluated at once."""
+        r = self.cands[idx_min:hi_idx]
+        if r.size == 0:
+            return
+        ok = limit[None, :] * (1 + 1e-12) >= r[:, None]                   # (R, nb): bound 1
+        if not ok.any():
+            return
+        ri, bi = np.nonzero(ok)
+        chain = bases[bi][:, None] + np.concatenate(
+            (np.broadcast_to(x, (ri.size, x.size)), r[ri][:, None] + x[None, :]), axis=1)
+        y = np.sort(self._settings(chain), axis=1)
+        err = worst_log_error_rows(np.log(np.maximum(y, 1e-9)), self.la, self.lb)
+        # ties: the first in (largest value, smallest base) order, as the loop would find
+        order = np.lexsort((bi, -ri))
+        i = int(order[np.argmin(err[order])])
+        if err[i] < self.best_h:
+            self.best_h = float(err[i])
+            self.best = LadderValues(float(bases[bi[i]]), tuple(chosen) + (float(r[ri[i]]),),
+                                     self.shunt)
+
+    def _map_values(self, y: np.ndarray) -> list[np.ndarray]:
+        """The chain value ``y`` through each map (identity, then the shunt)."""
+        if not self.shunt:
+            return [y]
+        p = self.shunt[0]
+        return [y, y * p / (y + p)]
 
     def _dfs(self, k: int, idx_min: int, x: np.ndarray, bases: np.ndarray,
              chosen: list[float]) -> None:
@@ -194,6 +223,9 @@ class _Search:
         up = math.exp(h)
         limit = self._max_chain(_cover_rows(y, self.lo, up, 1.0 / up) * up) - bases
         hi_idx = int(np.searchsorted(self.cands, limit.max() * (1 + 1e-12), side="right"))
+        if k == self.n - 1:
+            self._last(idx_min, hi_idx, limit, x, bases, chosen)
+            return
         top = bases + x[-1]
         m = self.n - k - 1
         for idx in range(hi_idx - 1, idx_min - 1, -1):
@@ -205,7 +237,7 @@ class _Search:
             if not keep.any():
                 continue
             child = np.sort(np.concatenate((x, x + r)))
-            keep &= self._count_ok(child, r, bases, m, h, up)
+            keep &= self._count_ok(child, r, bases, m, h)
             if keep.any():
                 self._dfs(k + 1, idx, child, bases[keep], chosen + [r])
                 h = self.best_h - _EPS  # the incumbent may have improved
@@ -226,7 +258,8 @@ def branch_and_bound(topology: Topology, lo_ohm: float, hi_ohm: float, relays: i
         Ladder relays (chain + shunt).
     cands : Candidates
     incumbent : SearchResult, optional
-        A known build to beat (default: plain binary weighting; never changes the result).
+        A known build to beat (default: :func:`scaled_binary_start`; never changes the
+        result).
     node_budget : int
         Stop after visiting this many nodes and return the best build so far with
         ``proven=False`` (deterministic: the same inputs give the same result).
@@ -234,7 +267,7 @@ def branch_and_bound(topology: Topology, lo_ohm: float, hi_ohm: float, relays: i
     n_chain = topology.chain_relays(relays)
     chain = np.asarray(cands.chain_ohm, dtype=float)
     if incumbent is None:
-        incumbent = binary_weighted(topology, lo_ohm, hi_ohm, relays, cands)
+        incumbent = scaled_binary_start(topology, lo_ohm, hi_ohm, relays, cands)
     search = _Search(lo_ohm, hi_ohm, n_chain, chain, incumbent.log_error + 1e-9,
                      incumbent.values, node_budget)
     bases = np.array(sorted({0.0, *cands.base_ohm}))
@@ -272,6 +305,30 @@ def binary_weighted(topology: Topology, lo_ohm: float, hi_ohm: float, relays: in
     return SearchResult(values, h, 0)
 
 
+def scaled_binary_start(topology: Topology, lo_ohm: float, hi_ohm: float, relays: int,
+                        cands: Candidates, steps: int = 61) -> SearchResult:
+    """A quick starting build for the search: binary weighting with the step scaled by
+    0.8 .. 1.6 and the base taken from the candidates at or below lo (every combination
+    tried, the best kept; no shunt search). Only the search's starting incumbent: it
+    never changes the search's result, only how soon the bounds bite."""
+    n_chain = topology.chain_relays(relays)
+    chain = np.asarray(cands.chain_ohm)
+    base_c = np.array(sorted({0.0, *cands.base_ohm}))
+    base_c = base_c[base_c <= lo_ohm * 1.05][-6:]
+    shunt = (binary_weighted(topology, lo_ohm, hi_ohm, relays, cands).values.shunt_ohm)
+    best = binary_weighted(topology, lo_ohm, hi_ohm, relays, cands)
+    for b in base_c:
+        for scale in np.geomspace(0.8, 1.6, steps):
+            step = scale * (hi_ohm - b) / (2 ** n_chain - 1)
+            vals = tuple(sorted(float(chain[np.argmin(np.abs(np.log(chain / (step * 2 ** i))))])
+                                for i in range(n_chain)))
+            v = LadderValues(float(b), vals, shunt)
+            h = worst_log_error(topology.ideal_settings_ohm(v), lo_ohm, hi_ohm)
+            if h < best.log_error:
+                best = SearchResult(v, h, 0)
+    return best
+
+
 def exhaustive_best(topology: Topology, lo_ohm: float, hi_ohm: float, relays: int,
                     cands: Candidates) -> SearchResult:
     """Best build by trying every base, shunt and chain multiset (for tests; small cases only)."""
@@ -301,4 +358,4 @@ def exhaustive_best(topology: Topology, lo_ohm: float, hi_ohm: float, relays: in
 
 
 __all__ = ["Candidates", "SearchResult", "default_candidates", "branch_and_bound",
-           "binary_weighted", "exhaustive_best", "log_settings"]
+           "binary_weighted", "scaled_binary_start", "DEFAULT_NODE_BUDGET", "exhaustive_best", "log_settings"]

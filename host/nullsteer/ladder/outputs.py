@@ -7,6 +7,7 @@ import os
 import tempfile
 from dataclasses import dataclass, replace
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -102,8 +103,11 @@ def settings_rows(design: LadderDesign) -> list[tuple[int, float, float]]:
     return out
 
 
-def board_ladder_block(design: LadderDesign) -> dict:
-    """The ``"ladder"`` key of the board config (read by the firmware and the hubs)."""
+def board_ladder_block(design: Any) -> dict:
+    """The ``"ladder"`` key of the board config (read by the firmware and the hubs).
+
+    ``design`` is a LadderDesign, or a StationDesign (its ``design`` is used)."""
+    design = getattr(design, "design", design)
     return {"topology": design.topology, "bits": design.relays,
             "resistors_ohm": design.resistors_ohm, "base_ohm": design.base_ohm,
             "table": [[s.mask, round(s.ohms, 1)] for s in design.settings]}
@@ -135,7 +139,8 @@ def write_board_ladder(design: LadderDesign, path: str | Path, key: str = "--boa
 _ROLE_NOTES = """\
 Role relays (not in the mask):
   K_OPEN  open-termination relay; NC contact in series with the ladder. Energised:
-          termination open, the loop works as a figure-8.
+          termination open: no rear null (F/B about 0 dB). For the small-loop
+          figure-8 (nulls broadside) the termination must be shorted instead.
   K_REV   reversal relay, DPDT. De-energised: end A to the receiver side, end B to the
           ladder. Energised: swapped (null toward the other end).
   K_PROT  receiver-protect relay; shorts the receiver input while K_REV moves.

@@ -13,7 +13,10 @@ Keys (all optional except where the CLI gives no default):
 ``contact_ohm``          closed relay contact resistance, ohms (default 0.1)
 ``open_capacitance_pf``  capacitance across an open contact, pF (default 1.0)
 ``induced_w``            RF power assumed to reach the termination, W (default 0.25)
-``time_limit_s``         stop the search after this long (default: none)
+``search_node_budget``   nodes one optimiser search may visit before it stops with the
+                         best build so far, marked not proven (default 5000)
+``null_depth_ceiling_db`` deepest null counted in the predicted null loss, dB (default
+                         30; see :mod:`nullsteer.ladder.nullloss`)
 
 ``[ladder.remote]`` (ladder in the shack, through a second line; all keys needed):
 ``transformer_ratio``, ``coax_z0_ohm``, ``coax_velocity_factor``,
@@ -26,14 +29,16 @@ from dataclasses import dataclass
 from typing import Any
 
 from nullsteer.antenna.feedline import Coax
-from nullsteer.config import check_unknown, get_float, get_str
+from nullsteer.config import check_unknown, get_float, get_int, get_str
 from nullsteer.errors import ConfigError
 from nullsteer.ladder.network import Parasitics
+from nullsteer.ladder.nullloss import DEFAULT_CEILING_DB
+from nullsteer.ladder.optimise import DEFAULT_NODE_BUDGET
 from nullsteer.ladder.remote import RemoteSpec
 
 _KEYS = {"series", "tolerance_pct", "relays", "topology", "range_ohm", "target_error_pct",
          "null_loss_goal_db", "contact_ohm", "open_capacitance_pf", "induced_w",
-         "time_limit_s", "remote"}
+         "search_node_budget", "null_depth_ceiling_db", "remote"}
 _REMOTE = {"transformer_ratio", "coax_z0_ohm", "coax_velocity_factor",
            "coax_loss_db_per_100m_at_10mhz", "coax_length_m"}
 
@@ -51,7 +56,8 @@ class LadderSpec:
     null_loss_goal_db: float = 3.0
     parasitics: Parasitics = Parasitics()
     induced_w: float = 0.25
-    time_limit_s: float | None = None
+    node_budget: int = DEFAULT_NODE_BUDGET
+    null_depth_ceiling_db: float = DEFAULT_CEILING_DB
     remote: RemoteSpec | None = None
 
 
@@ -94,7 +100,6 @@ def parse_ladder(table: dict[str, Any], where: str = "ladder") -> LadderSpec:
     if remote is not None and not isinstance(remote, dict):
         raise ConfigError(f"{where}.remote", "must be a table ([ladder.remote])")
     tol = table.get("tolerance_pct")
-    limit = table.get("time_limit_s")
     target = table.get("target_error_pct")
     return LadderSpec(
         series=get_str(table, "series", where, default="E24"),
@@ -113,6 +118,9 @@ def parse_ladder(table: dict[str, Any], where: str = "ladder") -> LadderSpec:
             get_float(table, "open_capacitance_pf", where, default=1.0, minimum=0.0,
                       maximum=1000.0) * 1e-12),
         induced_w=get_float(table, "induced_w", where, default=0.25, minimum=0.0),
-        time_limit_s=None if limit is None else get_float(table, "time_limit_s", where,
-                                                          minimum=0.0, exclusive_min=True),
+        node_budget=get_int(table, "search_node_budget", where, default=DEFAULT_NODE_BUDGET,
+                            minimum=1),
+        null_depth_ceiling_db=get_float(table, "null_depth_ceiling_db", where,
+                                        default=DEFAULT_CEILING_DB, minimum=0.0,
+                                        exclusive_min=True),
         remote=None if remote is None else parse_remote(remote, f"{where}.remote"))

@@ -121,7 +121,7 @@ class Topology:
         """The wiring of this build as a network tree (termination side at the top)."""
         path: list[Node] = [
             Contact("K_REV", Role.REVERSE, note="reversal relay pole, closed in both directions"),
-            Contact("K_OPEN", Role.OPEN, note="NC; energised opens the termination (figure-8)"),
+            Contact("K_OPEN", Role.OPEN, note="NC; energised opens the termination"),
         ]
         chain: list[Node] = []
         if v.base_ohm > 0:
