@@ -48,7 +48,7 @@ def _table(headers: Sequence[str], rows: Sequence[Sequence[Any]]) -> str:
 
 def write_report(station: Station, out_dir: str | Path, fed_end: str = "A",
                  autonull: dict[str, Any] | None = None,
-                 board_config: str | Path | None = None) -> Path:
+                 board_config: str | Path | None = None, design: Any = None) -> Path:
     """Write the report; returns the path of ``index.html``.
 
     Parameters
@@ -63,6 +63,9 @@ def write_report(station: Station, out_dir: str | Path, fed_end: str = "A",
         An auto-null result (``AutonullResult.to_json()``) to include with its path plot.
     board_config : path or None
         Board config whose ladder block is reported (default: the first device's).
+    design : LadderDesign or None
+        The ladder design behind that block; when given, the parts list carries each
+        resistor's tolerance and power rating (``nullsteer.ladder.parts_list``).
     """
     from nullsteer.noise import model_noise_budgets, parse_noise
     from nullsteer.plots import save_figure, station_figure, station_plot_data
@@ -98,13 +101,20 @@ def write_report(station: Station, out_dir: str | Path, fed_end: str = "A",
     if ladder:
         parts.append(f"<p>Topology {html.escape(str(ladder.get('topology', '?')))}, base "
                      f"{ladder.get('base_ohm', 0):g} Ω, {len(table)} settings.</p>")
-        res = ladder.get("resistors_ohm", [])
-        rows = [(f"R{i + 1}", f"{r:g} Ω", f"ladder relay {i}") for i, r in enumerate(res)]
-        if ladder.get("base_ohm"):
-            rows.append(("R0", f"{ladder['base_ohm']:g} Ω", "fixed base"))
-        parts.append("<h3>Parts list</h3>" + _table(("part", "value", "position"), rows)
-                     + "<p>Metal film, thick film or carbon composition; never wire-wound "
-                       "(inductive) in an RF termination.</p>")
+        from nullsteer.ladder import PARTS_CAUTION, parts_list
+
+        if design is not None:
+            rows = [(r.ref, f"{r.value_ohm:g} Ω", r.role, f"{r.series} ±{r.tolerance_pct:g} %",
+                     f"{r.power_w:g} W") for r in parts_list(design)]
+            head: tuple[str, ...] = ("part", "value", "position", "series", "rating")
+        else:
+            res = ladder.get("resistors_ohm", [])
+            rows = [(f"R{i + 1}", f"{r:g} Ω", f"ladder relay {i}") for i, r in enumerate(res)]
+            if ladder.get("base_ohm"):
+                rows.append(("R0", f"{ladder['base_ohm']:g} Ω", "fixed base"))
+            head = ("part", "value", "position")
+        parts.append("<h3>Parts list</h3>" + _table(head, rows)
+                     + f"<p>{html.escape(PARTS_CAUTION)}</p>")
         srt = sorted(table, key=lambda t: t[1])
         steps = [""] + [f"{(b[1] / a[1] - 1) * 100:.1f}" for a, b in zip(srt, srt[1:])]
         parts.append("<h3>Settings</h3>" + _table(

@@ -172,7 +172,7 @@ def run(args: argparse.Namespace) -> int:
 
     _say(args, "== 6. report")
     page = write_report(station, args.out, fed_end=result.fed_end, autonull=result.to_json(),
-                        board_config=board_config)
+                        board_config=board_config, design=design)
     (args.out / "demo.json").write_text(json.dumps(summary, indent=2, default=str) + "\n")
     summary["report"] = str(page)
     _say(args, f"  {page}")
