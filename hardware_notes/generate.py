@@ -40,20 +40,10 @@ PROTECT_REF = "K_PROT"  # the receiver-protect relay (not part of the ladder's t
 
 def _role_refs(tree: object) -> dict[str, str]:
     """Relay reference of each role contact in a ladder tree (e.g. reverse -> K_REV)."""
-    from nullsteer.ladder.network import Contact, Parallel, Series
+    from nullsteer.ladder.network import iter_contacts
     refs: dict[str, str] = {}
-
-    def walk(node: object) -> None:
-        if isinstance(node, Contact):
-            refs.setdefault(node.role.value, node.relay)
-        elif isinstance(node, Series):
-            for p in node.parts:
-                walk(p)
-        elif isinstance(node, Parallel):
-            for b in node.branches:
-                walk(b)
-
-    walk(tree)
+    for contact in iter_contacts(tree):
+        refs.setdefault(contact.role.value, contact.relay)
     return refs
 
 
@@ -94,21 +84,9 @@ def reversal_diagram(rev: str, open_: str) -> str:
 
 def bit_table(design: object, tree: object) -> str:
     """Which board.json relay drives which ladder contact."""
-    from nullsteer.ladder.network import Contact, Parallel, Role, Series
-    rows: list[tuple[int, str, str]] = []
-
-    def walk(node: object) -> None:
-        if isinstance(node, Contact) and node.role is Role.LADDER:
-            kind = "NO" if node.closed_when_set else "NC"
-            rows.append((node.bit, node.relay, kind))
-        elif isinstance(node, Series):
-            for p in node.parts:
-                walk(p)
-        elif isinstance(node, Parallel):
-            for b in node.branches:
-                walk(b)
-
-    walk(tree)
+    from nullsteer.ladder.network import Role, iter_contacts
+    rows = [(c.bit, c.relay, "NO" if c.closed_when_set else "NC")
+            for c in iter_contacts(tree) if c.role is Role.LADDER]
     lines = ["ladder bit | relay | contact used | board.json relay entry",
              "-----------+-------+--------------+------------------------------"]
     for bit, relay, kind in sorted(rows):

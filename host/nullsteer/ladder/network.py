@@ -134,6 +134,18 @@ def _eval(node: Node, masks: np.ndarray, omega: np.ndarray, par: Parasitics,
     return _parallel([_eval(b, masks, omega, par, r_scale, open_mode) for b in node.branches])
 
 
+def iter_contacts(node: Node):
+    """Every relay contact of a ladder tree, in drawing order."""
+    if isinstance(node, Contact):
+        yield node
+    elif isinstance(node, Series):
+        for part in node.parts:
+            yield from iter_contacts(part)
+    elif isinstance(node, Parallel):
+        for branch in node.branches:
+            yield from iter_contacts(branch)
+
+
 def network_impedance_ohm(tree: Node, masks: np.ndarray | list[int], freq_hz: np.ndarray | float,
                           parasitics: Parasitics = IDEAL, r_scale: float = 1.0,
                           open_mode: bool = False) -> np.ndarray:
