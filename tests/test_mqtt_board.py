@@ -1,7 +1,11 @@
 """Simulated board (real firmware under MicroPython) <-> real mosquitto <-> host link.
 
 Relay positions are read from the simulator's pin log (what the coils did), not from
-what the board says about itself.
+what the board says about itself. The broker behaviour relied on is that of MQTT 3.1.1
+(OASIS Standard, 2014): the last will published when a client drops without DISCONNECT
+(§3.1.2.5), retained messages kept and sent to new subscribers (§3.3.1.3), QoS 1
+delivery (§4.3.2), and CONNACK return code 5, not authorised, for a wrong password
+(§3.2.2.3); mosquitto implements it.
 """
 
 from __future__ import annotations
