@@ -5,7 +5,7 @@
 3. start a simulated board (the real firmware under MicroPython) with that config;
 4. set a preset, flip the null, open the termination, showing the relay switching order;
 5. find the deepest null on an (invented) interferer by measurement on the simulator;
-6. list the coming scheduled flips at the sun events;
+6. run the schedule service time-shifted over the next day: flips at the sun events;
 7. write the report (plots, ladder, parts, noise) to the output folder.
 """
 
@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import argparse
 import json
-from datetime import datetime, timedelta
+from datetime import datetime
 from pathlib import Path
 from typing import Any
 
@@ -100,18 +100,24 @@ def step_board(args: argparse.Namespace, station: Station, board_config: Path) -
     return out
 
 
-def step_schedule(args: argparse.Namespace, station: Station) -> list[dict[str, Any]]:
-    from nullsteer.schedule import plan
+def step_schedule(args: argparse.Namespace, station: Station, board_config: Path) -> list[str]:
+    """The schedule service, time-shifted over the next day, flipping a simulated board."""
+    from nullsteer.controller import Controller
+    from nullsteer.links.serial_link import open_url as open_serial
+    from nullsteer.service import Service, ServiceOptions
+    from nullsteer.sim import SimBoard
     from nullsteer.site import parse_site
 
-    site = parse_site(station)
-    start = datetime.now(site.tz)
-    actions = plan(station, start, start + timedelta(days=2)).actions
-    rows = []
-    for a in actions[:6]:
-        rows.append({"when": a.when.isoformat(), "preset": a.preset, "target": a.target.describe()})
-        _say(args, f"  {a.when:%a %Y-%m-%d %H:%M %Z}  {a.preset:<10} {a.target.describe()}")
-    return rows
+    start = datetime.now(parse_site(station).tz).replace(second=0, microsecond=0)
+    with SimBoard(board_config) as board:
+        service = Service(station, ServiceOptions(start=start, speed=0.0, days=1.0),
+                          opener=lambda device: Controller(open_serial(board.url), timeout_s=2.0))
+        service.run()
+        for line in service.lines:
+            _say(args, f"  {line}")
+        state = board.state()
+    _say(args, f"  relays now: fed end {state[0]}, mask {state[1]}, open {int(state[2])}")
+    return list(service.lines)
 
 
 def run(args: argparse.Namespace) -> int:
@@ -167,8 +173,8 @@ def run(args: argparse.Namespace) -> int:
                f"null {result.null_db:+.1f} dB against the reversed direction, "
                f"{result.switchings} switchings")
 
-    _say(args, "== 5. the coming scheduled flips")
-    summary["schedule"] = step_schedule(args, station)
+    _say(args, "== 5. the next day of scheduled flips, time-shifted (service against the board)")
+    summary["schedule"] = step_schedule(args, station, board_config)
 
     _say(args, "== 6. report")
     page = write_report(station, args.out, fed_end=result.fed_end, autonull=result.to_json(),

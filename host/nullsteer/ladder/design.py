@@ -13,6 +13,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from nullsteer import wire
 from nullsteer.errors import ConfigError
 from nullsteer.ladder.coverage import (ratio_error_pct, tolerance_shift, worst_case_error_pct,
                                        worst_log_error, worst_step_pct)
@@ -267,7 +268,7 @@ def nearest_setting(table: LadderDesign | list | tuple, ohms: float,
     usable = [(m, o) for m, o in pairs if o > 0 and math.isfinite(o)]
     if not usable:
         raise ConfigError(key, "the ladder table has no usable setting")
-    mask, best = min(usable, key=lambda p: abs(math.log(p[1] / ohms)))
+    mask, best = usable[wire.nearest_index([o for _, o in usable], ohms)]
     return mask, best, ratio_error_pct(best, ohms)
 
 
