@@ -37,6 +37,7 @@ $(STUBS_STAMP): | $(STAMP)
 stubs: $(STUBS_STAMP)
 
 typecheck: venv stubs
+	$(BIN)/python -m mypy
 	bash firmware/typecheck.sh $(BIN)/python $(STUBS)
 
 test: venv broker typecheck

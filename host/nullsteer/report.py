@@ -103,6 +103,7 @@ def write_report(station: Station, out_dir: str | Path, fed_end: str = "A",
                      f"{ladder.get('base_ohm', 0):g} Ω, {len(table)} settings.</p>")
         from nullsteer.ladder import PARTS_CAUTION, parts_list
 
+        rows: list[tuple[str, ...]]
         if design is not None:
             rows = [(r.ref, f"{r.value_ohm:g} Ω", r.role, f"{r.series} ±{r.tolerance_pct:g} %",
                      f"{r.power_w:g} W") for r in parts_list(design)]

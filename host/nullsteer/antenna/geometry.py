@@ -239,10 +239,10 @@ def mesh_from_pieces(pieces: list[tuple[np.ndarray, np.ndarray]], radius_m: floa
     ports = {}
     for name, p in port_points.items():
         key = (port_keys or {}).get(name, f"port {name}")
-        node = nodes.get(_key(np.asarray(p, dtype=float)))
-        if node is None:
+        found = nodes.get(_key(np.asarray(p, dtype=float)))
+        if found is None:
             raise ConfigError(key, f"point {np.round(p, 4).tolist()} is not a wire vertex")
-        idx = [i for i, n in enumerate(bnode) if n == node]
+        idx = [i for i, n in enumerate(bnode) if n == found]
         if len(idx) != 1:
             raise ConfigError(key, "a port must sit where exactly two segments meet")
         ports[name] = idx[0]

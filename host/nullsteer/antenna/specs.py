@@ -137,11 +137,13 @@ def rectangle_polyline(length_m: float, height_m: float, bottom_m: float,
     a, b = length_m / 2.0, -length_m / 2.0
     if port_position == "middle":
         mid = 0.5 * (height_m + bottom_m)
-        pts = ((a, 0.0, bottom_m), (a, 0.0, mid), (a, 0.0, height_m), (b, 0.0, height_m),
-               (b, 0.0, mid), (b, 0.0, bottom_m))
+        pts: tuple[tuple[float, float, float], ...] = (
+            (a, 0.0, bottom_m), (a, 0.0, mid), (a, 0.0, height_m), (b, 0.0, height_m),
+            (b, 0.0, mid), (b, 0.0, bottom_m))
         return pts, (a, 0.0, mid), (b, 0.0, mid)
-    pts = ((a, 0.0, bottom_m), (a, 0.0, height_m), (b, 0.0, height_m), (b, 0.0, bottom_m))
-    return pts, (a, 0.0, bottom_m), (b, 0.0, bottom_m)
+    corners: tuple[tuple[float, float, float], ...] = (
+        (a, 0.0, bottom_m), (a, 0.0, height_m), (b, 0.0, height_m), (b, 0.0, bottom_m))
+    return corners, (a, 0.0, bottom_m), (b, 0.0, bottom_m)
 
 
 def _point(value: Any, key: str) -> tuple[float, float, float]:

@@ -21,15 +21,12 @@ def print_json(obj: Any) -> None:
 
 
 def _json_default(value: Any) -> Any:
-    try:
-        import numpy as np
-    except ImportError:  # pragma: no cover
-        np = None
-    if np is not None:
-        if isinstance(value, np.generic):
-            return value.item()
-        if isinstance(value, np.ndarray):
-            return value.tolist()
+    import numpy as np
+
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, np.ndarray):
+        return value.tolist()
     if hasattr(value, "to_json"):
         return value.to_json()
     raise TypeError(f"not JSON serialisable: {type(value).__name__}")

@@ -34,7 +34,7 @@ class LoopLink:
         self._pending.clear()
 
 
-def open_url(url: str, board_config: object = None, **_: object) -> LoopLink:
+def open_url(url: str, board_config: str | None = None, **_: object) -> LoopLink:
     from nullsteer.sim import DEFAULT_BOARD_CONFIG, InProcessBoard
 
     options = query_options(url)

@@ -37,7 +37,7 @@ class SimLink:
         self.board.stop()  # type: ignore[attr-defined]
 
 
-def open_url(url: str, board_config: object = None, **_: object) -> SimLink:
+def open_url(url: str, board_config: str | None = None, **_: object) -> SimLink:
     """Start a simulated board for ``url``; ``board_config`` is used when the URL has none."""
     from nullsteer.sim import DEFAULT_BOARD_CONFIG, SimBoard
 
