@@ -35,6 +35,12 @@ Design notes
   nothing is retransmitted across connections.
 * TLS: pass an ``ssl`` context (MicroPython: ``ssl.SSLContext(ssl.PROTOCOL_TLS_CLIENT)``
   with ``load_verify_locations(cadata=<CA in DER>)``; MicroPython wants DER, not PEM).
+  The broker's name is checked against its certificate (``server_hostname``, default
+  ``host``). MicroPython's TLS reports a refused certificate as ``ValueError`` (checked on
+  the unix port, mbedTLS 3.6): it is raised here as :class:`TLSError`, an ``OSError``, so
+  the caller's reconnect loop treats it like any other failed connection. A TLS socket
+  that holds decrypted bytes not yet read shows as readable to ``select.poll`` on
+  MicroPython; on CPython :meth:`MQTTClient._fill` asks ``pending()``.
 * Errors: every failure of the connection raises ``OSError``; a refused CONNECT raises
   :class:`MQTTError` (a subclass) with the CONNACK return code (§3.2.2.3).
 """
@@ -79,6 +85,10 @@ class MQTTError(OSError):
         super().__init__("connection refused: %s (code %d)"
                          % (CONNACK_TEXT.get(code, "unknown"), code))
         self.code = code
+
+
+class TLSError(OSError):
+    """The TLS handshake failed (certificate not trusted, wrong name, not a TLS port)."""
 
 
 def _ticks_ms() -> int:
@@ -235,12 +245,13 @@ class MQTTClient:
         """Open the connection and wait for CONNACK; returns the session-present flag."""
         self.close()
         info = socket.getaddrinfo(self.host, self.port, 0, socket.SOCK_STREAM)[0]
-        sock = socket.socket(info[0], socket.SOCK_STREAM)
+        raw = socket.socket(info[0], socket.SOCK_STREAM)
         try:
-            sock.settimeout(self.connect_timeout_s)
-            sock.connect(info[-1])
+            raw.settimeout(self.connect_timeout_s)
+            raw.connect(info[-1])
+            sock = raw
             if self.ssl_context is not None:
-                sock = self.ssl_context.wrap_socket(sock, server_hostname=self.server_hostname)
+                sock = self._wrap(raw)
             self.sock = sock
             self.poller = select.poll()
             self.poller.register(sock, select.POLLIN)
@@ -264,11 +275,24 @@ class MQTTClient:
                 raise MQTTError(body[1])
         except Exception:
             self.close()
+            try:
+                raw.close()  # harmless when the TLS socket (closed above) owned it
+            except OSError:
+                pass
             raise
         self.connected = True
         self.last_rx_ms = _ticks_ms()
         self.ping_out_ms = -1
         return bool(body[0] & 1)
+
+    def _wrap(self, raw: "Any") -> "Any":
+        """The TLS socket over ``raw``, handshake done; failures raise TLSError."""
+        try:
+            return self.ssl_context.wrap_socket(raw, server_hostname=self.server_hostname)
+        except OSError as exc:
+            raise TLSError("TLS handshake failed: %s" % (exc,))
+        except ValueError as exc:  # MicroPython: certificate refused (mbedTLS text)
+            raise TLSError("TLS handshake failed: %s" % (str(exc).strip(),))
 
     def close(self) -> None:
         """Drop the socket without DISCONNECT (the broker then publishes the will)."""
@@ -333,7 +357,9 @@ class MQTTClient:
         """Read what is waiting (waiting at most ``timeout_ms``); True if bytes came."""
         if self.poller is None:
             raise OSError("not connected")
-        events = self.poller.poll(max(0, timeout_ms))
+        pending = getattr(self.sock, "pending", None)  # CPython TLS: bytes already decrypted
+        events = [(self.sock, select.POLLIN)] if pending is not None and pending() else \
+            self.poller.poll(max(0, timeout_ms))
         if not events:
             return False
         for _obj, ev in events:

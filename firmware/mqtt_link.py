@@ -55,7 +55,7 @@ import time
 
 import wire
 from link_serial import LineAssembler
-from mqtt_client import MQTTClient
+from mqtt_client import MQTTClient, TLSError
 
 
 def _config_error(key: str, message: str) -> Exception:
@@ -524,14 +524,33 @@ def make_client(m: dict) -> MQTTClient:
         import ssl
         ctx = ssl.SSLContext(ssl.PROTOCOL_TLS_CLIENT)
         if m["ca_file"]:
-            with open(m["ca_file"], "rb") as f:
-                ca = f.read()  # DER: MicroPython's TLS does not read PEM
-            ctx.load_verify_locations(cadata=ca)
+            try:
+                ctx.load_verify_locations(cadata=read_ca(m["ca_file"]))
+            except ValueError as exc:  # MicroPython: "invalid cert"
+                raise TLSError("mqtt.ca_file %s: not a usable certificate (%s)"
+                               % (m["ca_file"], exc))
             ctx.verify_mode = ssl.CERT_REQUIRED  # type: ignore[attr-defined]
         else:
             ctx.verify_mode = ssl.CERT_NONE  # type: ignore[attr-defined]
     return MQTTClient(client_id_for(m["id"]), m["host"], m["port"], m["user"],
                       m["password"], m["keepalive_s"], ctx, m["server_hostname"])
+
+
+def read_ca(path: str) -> bytes:
+    """The CA certificate of ``mqtt.ca_file`` in DER (MicroPython's TLS does not read PEM).
+
+    Problems raise TLSError (an OSError: the link logs it and retries with backoff, the
+    serial link goes on working), naming the key and the file."""
+    try:
+        with open(path, "rb") as f:
+            ca = f.read()
+    except OSError as exc:
+        raise TLSError("mqtt.ca_file %s: cannot read it (%s)" % (path, exc))
+    # DER starts with a SEQUENCE tag (0x30); PEM is text ("-----BEGIN CERTIFICATE-----")
+    if not ca or ca[0] != 0x30:
+        raise TLSError("mqtt.ca_file %s: not a DER certificate (convert PEM with "
+                       "openssl x509 -outform der)" % path)
+    return ca
 
 
 def client_id_for(device_id: str) -> str:

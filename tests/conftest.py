@@ -9,7 +9,12 @@ Fixtures (usable by every test module):
     A factory for brokers of a test's own: ``make_broker(users={"board": "pw"},
     acl="user board\\ntopic readwrite ns/#", persistence=True, tls=False)``. Each one is
     stopped at the end of the test. :class:`Broker` can ``stop()``, ``start()`` (same
-    port, same persistence folder), ``restart()`` and ``kill()``.
+    port, same persistence folder), ``restart()`` and ``kill()``. ``tls=True`` makes a
+    TLS listener with a throw-away CA and server certificate made at test time
+    (:attr:`Broker.tls`, a :class:`TlsFiles`: CA in PEM for the host, in DER for the board).
+``throwaway_ca``
+    A factory for more throw-away CAs (``throwaway_ca("other")`` -> :class:`ThrowawayCA`),
+    e.g. a CA the broker's certificate does not come from.
 
 Broker configuration notes (mosquitto 2.0, checked on Debian 2.0.11):
 
@@ -17,7 +22,10 @@ Broker configuration notes (mosquitto 2.0, checked on Debian 2.0.11):
 * started as root, mosquitto drops to the ``mosquitto`` user, which cannot read files in
   a 0700 temporary folder: the config says ``user root`` when we are root;
 * retained messages survive a restart only with ``persistence true`` and a
-  ``persistence_location`` (written at shutdown and every ``autosave_interval``).
+  ``persistence_location`` (written at shutdown and every ``autosave_interval``);
+* TLS: the listener's ``cafile``, ``certfile`` and ``keyfile`` options (mosquitto.conf(5),
+  "Certificate based SSL/TLS Support"); the certificates are made with the ``openssl``
+  command line (EC P-256 keys, valid for two days).
 """
 
 from __future__ import annotations
@@ -30,6 +38,7 @@ import shutil
 import socket
 import subprocess
 import time
+from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
@@ -67,6 +76,76 @@ def password_line(user: str, password: str) -> str:
     return f"{user}:$6${base64.b64encode(salt).decode()}${base64.b64encode(digest).decode()}"
 
 
+def openssl_exe() -> str:
+    """The ``openssl`` command line (part of the machine); skips the test without it."""
+    exe = shutil.which("openssl")
+    if exe is None:
+        pytest.skip("the openssl command line is not installed")
+    return exe
+
+
+def _openssl(*args: str | Path) -> None:
+    done = subprocess.run([openssl_exe(), *map(str, args)], capture_output=True, text=True,
+                          check=False, timeout=30)
+    if done.returncode != 0:
+        raise RuntimeError(f"openssl {args[0]} failed: {done.stderr.strip()[-800:]}")
+
+
+#: EC P-256 keys: quick to make, and read by both OpenSSL (host, broker) and mbedTLS (board)
+_EC_KEY = ("-newkey", "ec", "-pkeyopt", "ec_paramgen_curve:prime256v1", "-nodes")
+
+
+@dataclass(frozen=True)
+class ThrowawayCA:
+    """A certificate authority made for one test: its certificate (PEM and DER) and key."""
+
+    pem: Path
+    der: Path
+    key: Path
+
+    def issue_server(self, folder: Path, ip: str = "127.0.0.1",
+                     dns: str = "localhost") -> tuple[Path, Path]:
+        """A server certificate and key signed by this CA, for ``ip`` and ``dns``.
+
+        The names go in subjectAltName (RFC 5280 §4.2.1.6: iPAddress and dNSName
+        entries), where TLS clients look for the host they connected to.
+        """
+        folder.mkdir(parents=True, exist_ok=True)
+        key, csr, cert = folder / "server.key", folder / "server.csr", folder / "server.pem"
+        ext = folder / "server.ext"
+        ext.write_text(f"subjectAltName=IP:{ip},DNS:{dns}\n"
+                       "basicConstraints=critical,CA:FALSE\n"
+                       "keyUsage=critical,digitalSignature\n"
+                       "extendedKeyUsage=serverAuth\n")
+        _openssl("req", "-new", *_EC_KEY, "-keyout", key, "-out", csr, "-subj", f"/CN={dns}")
+        _openssl("x509", "-req", "-in", csr, "-CA", self.pem, "-CAkey", self.key,
+                 "-set_serial", str(int.from_bytes(os.urandom(8), "big")), "-days", "2",
+                 "-extfile", ext, "-out", cert)
+        return cert, key
+
+
+def new_ca(folder: Path, name: str) -> ThrowawayCA:
+    """Make a self-signed CA named ``name`` in ``folder`` (cA flag and keyCertSign usage as
+    RFC 5280 §4.2.1.9 / §4.2.1.3 ask of a certificate that signs others)."""
+    folder.mkdir(parents=True, exist_ok=True)
+    pem, der, key = folder / "ca.pem", folder / "ca.der", folder / "ca.key"
+    _openssl("req", "-x509", *_EC_KEY, "-keyout", key, "-out", pem, "-days", "2",
+             "-subj", f"/CN={name}", "-addext", "basicConstraints=critical,CA:TRUE",
+             "-addext", "keyUsage=critical,keyCertSign,cRLSign")
+    _openssl("x509", "-in", pem, "-outform", "der", "-out", der)  # the board reads DER
+    return ThrowawayCA(pem, der, key)
+
+
+@dataclass(frozen=True)
+class TlsFiles:
+    """A TLS broker's files: its CA (PEM for the host, DER for the board), cert and key."""
+
+    ca_pem: Path
+    ca_der: Path
+    certfile: Path
+    keyfile: Path
+
+
 class Broker:
     """A mosquitto process with a config written at test time.
 
@@ -80,13 +159,14 @@ class Broker:
         mosquitto ACL file text (``user NAME`` / ``topic read|write|readwrite FILTER``).
     persistence : bool
         Keep retained messages across restarts (stored in ``folder``).
-    tls : dict or None
-        ``{"cafile", "certfile", "keyfile"}`` for a TLS listener instead of plain TCP.
+    tls : bool
+        A TLS listener instead of plain TCP, with a throw-away CA and a server certificate
+        for 127.0.0.1/localhost made in ``folder`` (their paths: :attr:`tls`).
     """
 
     def __init__(self, folder: Path, users: dict[str, str] | None = None,
                  acl: str | None = None, persistence: bool = False,
-                 tls: dict[str, str] | None = None) -> None:
+                 tls: bool = False) -> None:
         exe = find_mosquitto()
         if exe is None:
             pytest.skip("mosquitto is not installed (make test installs it)")
@@ -116,9 +196,15 @@ class Broker:
                       "autosave_interval 1"]
         else:
             lines.append("persistence false")
+        self.tls: TlsFiles | None = None
         if tls:
-            lines += [f"cafile {tls['cafile']}", f"certfile {tls['certfile']}",
-                      f"keyfile {tls['keyfile']}"]
+            ca = new_ca(folder / "ca", f"nullsteer test CA {os.getpid()}")
+            cert, key = ca.issue_server(folder / "server", self.host, "localhost")
+            self.tls = TlsFiles(ca.pem, ca.der, cert, key)
+            # options of the listener above (mosquitto.conf(5)); the files stay readable
+            # because a root-started broker runs on as root ("user root")
+            lines += [f"cafile {self.tls.ca_pem}", f"certfile {self.tls.certfile}",
+                      f"keyfile {self.tls.keyfile}"]
         self.config_path = folder / "mosquitto.conf"
         self.config_path.write_text("\n".join(lines) + "\n")
 
@@ -163,12 +249,15 @@ class Broker:
 
     def url(self, device_id: str, user: str | None = None, password: str | None = None,
             **query: str) -> str:
-        """An ``mqtt://`` link URL for ``device_id`` on this broker."""
+        """A link URL for ``device_id`` on this broker: ``mqtt://``, or ``mqtts://`` for a
+        TLS broker (pass ``ca=`` yourself: the URL trusts only what it is told)."""
         cred = ""
         if user is not None:
             cred = user + (f":{password}" if password is not None else "") + "@"
         q = "&".join(f"{k}={v}" for k, v in query.items())
-        return f"mqtt://{cred}{self.host}:{self.port}/{device_id}" + (f"?{q}" if q else "")
+        scheme = "mqtts" if self.tls is not None else "mqtt"
+        return (f"{scheme}://{cred}{self.host}:{self.port}/{device_id}"
+                + (f"?{q}" if q else ""))
 
 
 @pytest.fixture(scope="session")
@@ -195,3 +284,14 @@ def make_broker(tmp_path: Path):
     yield make
     for b in made:
         b.stop()
+
+
+@pytest.fixture
+def throwaway_ca(tmp_path: Path):
+    """Factory for throw-away CAs of a test's own: ``throwaway_ca("name")``."""
+    count = itertools.count()
+
+    def make(name: str = "throw-away CA") -> ThrowawayCA:
+        return new_ca(tmp_path / f"ca{next(count)}", f"{name} {os.getpid()}")
+
+    return make

@@ -26,6 +26,13 @@ in ``on_connect`` (they are lost on reconnect otherwise); publish completion is 
 ``on_publish``, not ``wait_for_publish``; client ids are unique per connection.
 After a reconnect the retained state is received again (resync) and reply lines queued
 before it are dropped; :attr:`MqttLink.connects` counts connections.
+
+TLS: the first connection is made in :meth:`MqttLink.start` itself, so a broker
+certificate that is not accepted (another CA, another name) or a port that does not speak
+TLS raises a :class:`LinkError` saying so at once instead of a retry loop ending in a
+timeout; a broker that is merely not there yet is retried in the background until
+``connect_timeout``. Unreadable ``ca``/``cert``/``key`` files are a ConfigError. Messages
+never show the URL's password.
 """
 
 from __future__ import annotations
@@ -40,7 +47,7 @@ import time
 import uuid
 from collections.abc import Callable
 from typing import Any
-from urllib.parse import unquote, urlsplit
+from urllib.parse import unquote, urlsplit, urlunsplit
 
 import paho.mqtt.client as mqtt
 
@@ -64,6 +71,23 @@ def _guarded(fn: Callable[..., None]) -> Callable[..., None]:
 
     wrapper.__name__ = fn.__name__
     return wrapper
+
+
+def redacted(url: str) -> str:
+    """``url`` with the password (if any) replaced by ``***``, for messages and logs."""
+    parts = urlsplit(url)
+    if parts.password is None:
+        return url
+    netloc = parts.netloc.rsplit("@", 1)[1]
+    user = parts.netloc.rsplit("@", 1)[0].split(":", 1)[0]
+    return urlunsplit(parts._replace(netloc=f"{user}:***@{netloc}"))
+
+
+def tls_failure(exc: ssl.SSLError) -> str:
+    """One line on why a TLS handshake failed."""
+    if isinstance(exc, ssl.SSLCertVerificationError):
+        return f"broker certificate not accepted: {exc.verify_message}"
+    return f"TLS handshake failed: {exc.reason or exc} (is this a TLS port?)"
 
 
 def parse_url(url: str) -> dict[str, Any]:
@@ -110,7 +134,7 @@ class MqttLink:
     """A line link to one board through a broker (see the module docstring)."""
 
     def __init__(self, url: str, settings: dict[str, Any]) -> None:
-        self.url = url
+        self.url = redacted(url)
         self.settings = settings
         self.device_id: str = settings["device"]
         self.topic = f"{settings['base']}/{self.device_id}/"
@@ -129,9 +153,16 @@ class MqttLink:
         if settings["user"] is not None:
             c.username_pw_set(settings["user"], settings["password"])
         if settings["tls"]:
-            c.tls_set(ca_certs=settings["ca"], certfile=settings["cert"],
-                      keyfile=settings["key"], cert_reqs=ssl.CERT_REQUIRED)
+            try:
+                c.tls_set(ca_certs=settings["ca"], certfile=settings["cert"],
+                          keyfile=settings["key"], cert_reqs=ssl.CERT_REQUIRED)
+            except (OSError, ValueError) as exc:  # ssl.SSLError is an OSError
+                files = ", ".join(f"{k}={settings[k]}" for k in ("ca", "cert", "key")
+                                  if settings[k])
+                raise ConfigError("--link", f"cannot use the TLS files ({files or 'system CAs'})"
+                                            f" of {self.url}: {exc}") from None
             c.tls_insecure_set(settings["insecure"])
+        c.connect_timeout = settings["connect_timeout_s"]
         c.reconnect_delay_set(min_delay=1, max_delay=8)
         c.on_connect = _guarded(self._on_connect)
         c.on_disconnect = _guarded(self._on_disconnect)
@@ -204,12 +235,32 @@ class MqttLink:
 
     # --- life cycle ------------------------------------------------------------------
     def start(self) -> MqttLink:
-        """Connect (the network thread then reconnects by itself) and wait for CONNACK."""
+        """Connect (the network thread then reconnects by itself) and wait for CONNACK.
+
+        The first attempt runs here: a TLS failure is final (LinkError at once); a broker
+        that refuses or is unreachable is retried in the background until the timeout."""
         s = self.settings
         try:
-            self._client.connect_async(s["host"], s["port"], keepalive=s["keepalive"])
-        except (OSError, ValueError) as exc:
+            self._client.connect(s["host"], s["port"], keepalive=s["keepalive"])
+        except ssl.SSLError as exc:  # includes the host name check (check_hostname)
+            raise LinkError(f"{self.url}: {tls_failure(exc)}") from None
+        except ConnectionResetError as exc:
+            if not s["tls"]:
+                raise LinkError(f"{self.url}: cannot connect: {exc}") from None
+            # dropped during the handshake: what a plain MQTT port does to a ClientHello
+            raise LinkError(f"{self.url}: TLS handshake failed: connection reset by the "
+                            "broker (is this a TLS port?)") from None
+        except TimeoutError:
+            raise LinkError(f"{self.url}: no answer within {s['connect_timeout_s']:g} s") \
+                from None
+        except ValueError as exc:
             raise LinkError(f"{self.url}: cannot connect: {exc}") from None
+        except OSError as exc:  # not there (yet): keep trying until the timeout
+            log.info("%s: %s; retrying", self.url, exc)
+            try:
+                self._client.connect_async(s["host"], s["port"], keepalive=s["keepalive"])
+            except (OSError, ValueError) as exc2:
+                raise LinkError(f"{self.url}: cannot connect: {exc2}") from None
         self._client.loop_start()
         if not self.wait_connected(s["connect_timeout_s"]):
             why = self._refused or f"no connection within {s['connect_timeout_s']:g} s"
