@@ -179,7 +179,10 @@ class Broker:
         lines = [f"listener {self.port} {self.host}",
                  f"allow_anonymous {'false' if users else 'true'}",
                  "log_dest stderr", "log_type error", "log_type warning",
-                 "log_type notice", "max_keepalive 600"]
+                 "log_type notice", "max_keepalive 600",
+                 # small packets at once, as a home broker for interactive commands
+                 # would be set up (mosquitto.conf(5), set_tcp_nodelay)
+                 "set_tcp_nodelay true"]
         if os.geteuid() == 0:
             lines.append("user root")
         if users:

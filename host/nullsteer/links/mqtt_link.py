@@ -41,6 +41,7 @@ import json
 import logging
 import os
 import queue
+import socket
 import ssl
 import threading
 import time
@@ -179,6 +180,12 @@ class MqttLink:
                 self._refused = str(reason)
                 self._cv.notify_all()
             return
+        sock = client.socket()
+        if sock is not None and hasattr(sock, "setsockopt"):
+            try:  # a request and its reply are a few dozen bytes: send them at once
+                sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+            except OSError:
+                pass
         while True:  # replies to requests sent before this connection are stale
             try:
                 self._lines.get_nowait()
