@@ -56,6 +56,42 @@ def table_termination(table: Sequence[tuple[int, float]]) -> Callable[[int, floa
     return termination
 
 
+def ladder_termination(block: dict[str, Any]) -> Callable[[int, float], complex]:
+    """``termination_ohm(mask, freq_hz)`` from a board config's ladder block: each
+    setting's impedance at frequency, relay contact resistance and open-contact
+    capacitance included (``nullsteer.ladder.settings_impedance_ohm``)."""
+    from nullsteer.ladder import design_from_board_block, settings_impedance_ohm
+
+    design = design_from_board_block(block)
+    masks = {s.mask: i for i, s in enumerate(design.settings)}
+    cache: dict[float, np.ndarray] = {}
+
+    def termination(mask: int, freq_hz: float) -> complex:
+        if mask not in masks:
+            raise ConfigError("--mask", f"setting {mask} is not in the ladder table")
+        if freq_hz not in cache:
+            cache[freq_hz] = np.ravel(settings_impedance_ohm(design, freq_hz))
+        return complex(cache[freq_hz][masks[mask]])
+
+    return termination
+
+
+def board_termination(board_config: str | Path | None,
+                      table: Sequence[tuple[int, float]]) -> Callable[[int, float], complex]:
+    """The simulated termination: from the board config's ladder block when it names the
+    topology and resistors (impedance at frequency), else the table's DC values."""
+    if board_config is not None and Path(board_config).exists():
+        import json
+
+        try:
+            block = json.loads(Path(board_config).read_text()).get("ladder") or {}
+        except ValueError:
+            block = {}
+        if "topology" in block and "resistors_ohm" in block:
+            return ladder_termination(block)
+    return table_termination(table)
+
+
 def build_virtual_receiver(station: Station, solution: Any,
                            termination: Callable[[int, float], complex],
                            clock: Callable[[], float] | None = None) -> Any:
@@ -244,7 +280,8 @@ def demo_autonull(station_path: str | Path, freq_mhz: float | None = None,
         solution = solve_station_model(station, [freq_hz])
         start = predicted_optimum_ohm(solution, fe, station_elevations_deg(station))
         table = ctl.table()
-        receiver = build_virtual_receiver(station, solution, table_termination(table))
+        receiver = build_virtual_receiver(station, solution,
+                                          board_termination(board_config, table))
         source: Source = SimSource(receiver, freq_hz, board_state_reader(ctl))
         meter = Meter(source, dwell_s=dwell_s, reads=reads, interval_s=0.02)
         start = start if math.isfinite(start) else max(r for _, r in table)

@@ -70,7 +70,7 @@ def run(args: argparse.Namespace) -> int:
     from nullsteer.autonull_run import (autonull_on_controller, board_state_reader,
                                         build_virtual_receiver, predicted_optimum_ohm,
                                         save_band_preset, solve_station_model,
-                                        station_elevations_deg, table_termination)
+                                        station_elevations_deg, board_termination)
     from nullsteer.bearing import fed_end_for_null
     from nullsteer.config import load_station
     from nullsteer.measure import CommandSource, ManualSource, Meter, Source
@@ -108,8 +108,12 @@ def run(args: argparse.Namespace) -> int:
         if args.source == "sim":
             from nullsteer.sim.receiver import SimSource
 
+            from nullsteer.devices import parse_devices
+
+            boards = [d.board_config for d in parse_devices(station)  # type: ignore[arg-type]
+                      if d.board_config is not None and (not args.device or d.id == args.device)]
             rx = build_virtual_receiver(station, solution,  # type: ignore[arg-type]
-                                        table_termination(table))
+                                        board_termination(boards[0] if boards else None, table))
             source = SimSource(rx, freq_hz, board_state_reader(ctl))
         elif args.source == "command":
             source = CommandSource(args.command, timeout_s=args.command_timeout)

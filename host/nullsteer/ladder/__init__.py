@@ -21,7 +21,8 @@ from nullsteer.ladder.network import Parasitics
 from nullsteer.ladder.nullloss import NullLoss, predicted_null_loss
 from nullsteer.ladder.optimise import (Candidates, SearchResult, binary_weighted,
                                        branch_and_bound, default_candidates, exhaustive_best)
-from nullsteer.ladder.outputs import (PARTS_CAUTION, board_ladder_block, parts_list,
+from nullsteer.ladder.outputs import (PARTS_CAUTION, board_ladder_block, design_from_board_block,
+                                      parts_list,
                                       settings_rows, wiring_diagram, write_board_ladder)
 from nullsteer.ladder.remote import (RemoteSpec, ladder_range_ohm, reactance_warnings,
                                      seen_termination_ohm, suggest_transformer_ratio)
@@ -33,7 +34,7 @@ __all__ = [
     "open_impedance_ohm", "settings_impedance_ohm", "with_values", "SERIES", "ESeries",
     "get_series", "Parasitics", "NullLoss", "predicted_null_loss", "Candidates",
     "SearchResult", "binary_weighted", "branch_and_bound", "default_candidates",
-    "exhaustive_best", "PARTS_CAUTION", "board_ladder_block", "parts_list", "settings_rows",
+    "exhaustive_best", "PARTS_CAUTION", "board_ladder_block", "design_from_board_block", "parts_list", "settings_rows",
     "wiring_diagram", "write_board_ladder", "RemoteSpec", "ladder_range_ohm",
     "reactance_warnings", "seen_termination_ohm", "suggest_transformer_ratio", "LadderSpec",
     "parse_ladder", "TOPOLOGIES", "LadderValues", "Topology", "get_topology",

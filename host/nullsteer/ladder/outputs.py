@@ -12,9 +12,9 @@ from typing import Any
 import numpy as np
 
 from nullsteer.errors import ConfigError
-from nullsteer.ladder.design import LadderDesign, dc_settings
-from nullsteer.ladder.network import format_ohm, render_tree
-from nullsteer.ladder.topology import LadderValues
+from nullsteer.ladder.design import LadderDesign, dc_settings, evaluate
+from nullsteer.ladder.network import Parasitics, format_ohm, render_tree
+from nullsteer.ladder.topology import LadderValues, get_topology
 
 #: Standard power ratings of leaded film resistors, watts (common practice).
 POWER_RATINGS_W = (0.125, 0.25, 0.5, 1.0, 2.0, 3.0)
@@ -111,6 +111,26 @@ def board_ladder_block(design: Any) -> dict:
     return {"topology": design.topology, "bits": design.relays,
             "resistors_ohm": design.resistors_ohm, "base_ohm": design.base_ohm,
             "table": [[s.mask, round(s.ohms, 1)] for s in design.settings]}
+
+
+def design_from_board_block(block: dict, parasitics: Parasitics | None = None,
+                            series: str = "E24", tolerance_pct: float = 1.0) -> LadderDesign:
+    """The ladder a board config's ``"ladder"`` block describes (topology, base, resistors
+    in bit order), for its settings' impedance at frequency; the design range is the
+    table's span. Raises ConfigError naming ``ladder.<key>`` when the block lacks them."""
+    for key in ("topology", "resistors_ohm"):
+        if key not in block:
+            raise ConfigError(f"ladder.{key}", "the board config's ladder block lacks it")
+    topo = get_topology(str(block["topology"]), "ladder.topology")
+    res = [float(r) for r in block["resistors_ohm"]]
+    if len(res) <= topo.shunt_relays:
+        raise ConfigError("ladder.resistors_ohm", f"{topo.name.value} needs more resistors")
+    n_chain = len(res) - topo.shunt_relays
+    values = LadderValues(float(block.get("base_ohm", 0.0)), tuple(res[:n_chain]),
+                          tuple(res[n_chain:]))
+    table = [float(r) for _, r in block.get("table", [])] or [1.0, 2.0]
+    return evaluate(topo, values, min(table), max(table), tolerance_pct,
+                    parasitics or Parasitics(), series)
 
 
 def write_board_ladder(design: LadderDesign, path: str | Path, key: str = "--board-config") -> None:
