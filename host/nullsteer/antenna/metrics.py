@@ -73,8 +73,16 @@ def peak_gain_dbi(sol: PortSolution, termination_ohm, fed_end, realized: bool = 
     return g.reshape(g.shape[:-2] + (-1,)).max(axis=-1)
 
 
+#: Deepest null counted when losses are compared, dB. At the exact optimum for one
+#: elevation the modelled null is practically infinitely deep, so any error "costs" a
+#: lot against infinity; it is common practice (from memory) that nulls on sky-wave
+#: signals deeper than about 30 dB are not kept for long, because the arriving
+#: elevation and polarisation wander.
+NULL_DEPTH_CEILING_DB = 30.0
+
+
 def fb_loss_db(sol: PortSolution, fed_end, el_deg, r_opt_ohm: np.ndarray,
-               error_pct: np.ndarray) -> np.ndarray:
+               error_pct: np.ndarray, ceiling_db: float | None = None) -> np.ndarray:
     """F/B lost when the termination is off by ±``error_pct`` from ``r_opt_ohm``.
 
     Parameters
@@ -83,6 +91,8 @@ def fb_loss_db(sol: PortSolution, fed_end, el_deg, r_opt_ohm: np.ndarray,
         Optimum at ``el_deg`` (one elevation) for each frequency.
     error_pct : ndarray (P,)
         Termination errors, per cent.
+    ceiling_db : float or None
+        Cap both F/B values at this depth before the difference (None: no cap).
 
     Returns the worse of the high and low side, dB, shape (F, P).
     """
@@ -91,4 +101,7 @@ def fb_loss_db(sol: PortSolution, fed_end, el_deg, r_opt_ohm: np.ndarray,
     fb0 = sol.fb_db(r, fed_end, el_deg)[:, 0]
     hi = sol.fb_db(r * (1 + e), fed_end, el_deg)
     lo = sol.fb_db(r / (1 + e), fed_end, el_deg)
-    return fb0[:, None] - np.minimum(hi, lo)
+    worse = np.minimum(hi, lo)
+    if ceiling_db is not None:
+        fb0, worse = np.minimum(fb0, ceiling_db), np.minimum(worse, ceiling_db)
+    return fb0[:, None] - worse

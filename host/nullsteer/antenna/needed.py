@@ -6,7 +6,9 @@ both fed ends, the F/B-optimum termination is found in closed form
 largest of those optima. The sensitivity is the F/B lost per per cent of termination
 error near the optimum: the worst case over the table of the loss at ±``ref_error_pct``
 divided by ``ref_error_pct`` (an average slope; a deep null loses most in its first
-per cent, so the loss curve at several errors is given too).
+per cent, so the loss curve at several errors is given too). F/B deeper than a realistic
+null (``ceiling_db``, 30 dB by default) is not counted: see
+:data:`~nullsteer.antenna.metrics.NULL_DEPTH_CEILING_DB`.
 """
 
 from __future__ import annotations
@@ -16,7 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from nullsteer.antenna.geometry import FedEnd
-from nullsteer.antenna.metrics import fb_loss_db
+from nullsteer.antenna.metrics import NULL_DEPTH_CEILING_DB, fb_loss_db
 from nullsteer.antenna.ports import PortSolution
 
 ERRORS_PCT = (1.0, 2.0, 5.0, 10.0, 20.0)
@@ -79,7 +81,8 @@ def span_elevations(span_deg: tuple[float, float] | list[float], step_deg: float
 
 
 def needed_range(sol: PortSolution, elevation_span_deg=(10.0, 60.0), step_deg: float = 5.0,
-                 fed_ends=(FedEnd.A, FedEnd.B), ref_error_pct: float = 5.0) -> NeededRange:
+                 fed_ends=(FedEnd.A, FedEnd.B), ref_error_pct: float = 5.0,
+                 ceiling_db: float | None = NULL_DEPTH_CEILING_DB) -> NeededRange:
     """Needed termination range and null-depth sensitivity.
 
     Parameters
@@ -93,6 +96,9 @@ def needed_range(sol: PortSolution, elevation_span_deg=(10.0, 60.0), step_deg: f
         Directions the user will switch between.
     ref_error_pct : float
         Termination error at which the sensitivity slope is taken, per cent.
+    ceiling_db : float or None
+        Null depth beyond which F/B is not counted in the sensitivity
+        (:data:`~nullsteer.antenna.metrics.NULL_DEPTH_CEILING_DB`; None: uncapped).
     """
     span = list(elevation_span_deg)
     el = np.asarray(span, float) if len(span) > 2 else span_elevations(span, step_deg)
@@ -105,7 +111,7 @@ def needed_range(sol: PortSolution, elevation_span_deg=(10.0, 60.0), step_deg: f
             finite = np.isfinite(r[:, j])
             if np.any(finite):
                 losses.append(fb_loss_db(sol, fe, e, np.where(finite, r[:, j], 1.0),
-                                         errs)[finite])
+                                         errs, ceiling_db)[finite])
             for i, f in enumerate(sol.freqs_hz):
                 rows.append(OptimumRow(float(f), fe.value, float(e), float(r[i, j]),
                                        float(fb[i])))

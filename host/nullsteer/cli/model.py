@@ -15,7 +15,7 @@ import sys
 import numpy as np
 
 from nullsteer.bearing import FedEnd, null_bearing_deg
-from nullsteer.antenna.metrics import null_of, azimuth_pattern
+from nullsteer.antenna.metrics import NULL_DEPTH_CEILING_DB, azimuth_pattern, null_of
 from nullsteer.antenna.needed import needed_range
 from nullsteer.antenna.ports import LoopModel
 from nullsteer.antenna.station import station_loop
@@ -155,7 +155,8 @@ def _print_table(rep: dict) -> None:
               f"{r['null_bearing_deg']:7.0f} {r['null_depth_db']:8.1f}")
     lo, hi = rep["needed_range_ohm"]
     print(f"needed termination range (both fed ends, all elevations): {lo:.0f}–{hi:.0f} Ω; "
-          f"F/B lost ≈ {rep['fb_loss_db_per_pct']:.2f} dB per % of error")
+          f"F/B lost ≈ {rep['fb_loss_db_per_pct']:.2f} dB per % of error "
+          f"(nulls deeper than {NULL_DEPTH_CEILING_DB:g} dB not counted)")
     for w in rep["warnings"]:
         print(f"warning: {w}", file=sys.stderr)
 

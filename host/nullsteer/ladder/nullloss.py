@@ -24,11 +24,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from nullsteer.antenna.metrics import NULL_DEPTH_CEILING_DB
 from nullsteer.ladder.design import LadderDesign, settings_impedance_ohm
 from nullsteer.ladder.remote import RemoteSpec, seen_termination_ohm
 
 #: Deepest null counted, dB (common practice, from memory: see the module docstring).
-DEFAULT_CEILING_DB = 30.0
+DEFAULT_CEILING_DB = NULL_DEPTH_CEILING_DB
 
 
 @dataclass(frozen=True)
