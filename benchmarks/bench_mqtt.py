@@ -17,6 +17,7 @@ from pathlib import Path
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO / "tests"))
 
+from timing import summary  # noqa: E402
 from conftest import Broker  # noqa: E402  (the tests' broker fixture class)
 from mqtt_support import MqttSimBoard  # noqa: E402
 
@@ -25,12 +26,6 @@ from nullsteer.links import open_link  # noqa: E402
 
 N = 200
 GOAL_MS = 100.0
-
-
-def summary(name: str, ms: list[float]) -> str:
-    q = statistics.quantiles(ms, n=20)
-    return (f"{name:<14} median {statistics.median(ms):7.1f} ms   p5 {q[0]:6.1f}   "
-            f"p95 {q[-1]:6.1f}   max {max(ms):6.1f}   stdev {statistics.stdev(ms):5.1f}")
 
 
 def main() -> int:

@@ -23,6 +23,7 @@ from pathlib import Path
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO / "tests"))
 
+from timing import summary  # noqa: E402
 from conftest import Broker  # noqa: E402  (the tests' broker fixture class)
 from mqtt_support import MqttSimBoard  # noqa: E402
 
@@ -95,12 +96,6 @@ def set_round_trips(broker: Broker, block: dict, url: str) -> list[float]:
         board.stop()
 
 
-def line(name: str, ms: list[float]) -> str:
-    q = statistics.quantiles(ms, n=20)
-    return (f"{name:<28} median {statistics.median(ms):7.1f} ms   p5 {q[0]:6.1f}   "
-            f"p95 {q[-1]:6.1f}   max {max(ms):6.1f}")
-
-
 def main() -> int:
     folder = Path(tempfile.mkdtemp(prefix="bench-mqtt-tls-"))
     (folder / "plain").mkdir()
@@ -115,7 +110,7 @@ def main() -> int:
         for kind in ("plain", "tls"):
             ms = [m for m, _ in got[kind]]
             held = statistics.median(h for _, h in got[kind])
-            print(line(f"  {kind}", ms) + f"   MicroPython heap held {held / 1024:4.1f} KiB")
+            print(summary(f"  {kind}", ms) + f"   MicroPython heap held {held / 1024:4.1f} KiB")
         ratio = (statistics.median(m for m, _ in got["tls"])
                  / statistics.median(m for m, _ in got["plain"]))
         print(f"  TLS / plain connect time: {ratio:.0f} x (heap: mbedTLS buffers are "
@@ -128,8 +123,8 @@ def main() -> int:
         t_ms = set_round_trips(tls, {**base, "port": tls.port, "id": "bench-tls", "tls": True,
                                      "ca_file": str(tls.tls.ca_der)},
                                tls.url("bench-tls", ca=str(tls.tls.ca_pem)))
-        print(line("  plain (both sides)", p_ms))
-        print(line("  TLS (both sides)", t_ms))
+        print(summary("  plain (both sides)", p_ms))
+        print(summary("  TLS (both sides)", t_ms))
         print(f"  TLS / plain median: {statistics.median(t_ms) / statistics.median(p_ms):.2f} x")
     finally:
         plain.stop()

@@ -14,6 +14,8 @@ import json
 import statistics
 import time
 
+from timing import summary
+
 from nullsteer.controller import Controller, FedEnd
 from nullsteer.links import open_link
 from nullsteer.sim import DEFAULT_BOARD_CONFIG, SimBoard
@@ -28,12 +30,6 @@ def timed(fn, n: int) -> list[float]:
         fn(i)
         out.append((time.perf_counter() - t0) * 1000.0)
     return out
-
-
-def summary(name: str, ms: list[float]) -> str:
-    q = statistics.quantiles(ms, n=20)
-    return (f"{name:<28} median {statistics.median(ms):7.2f} ms   p5 {q[0]:7.2f}   "
-            f"p95 {q[-1]:7.2f}   max {max(ms):7.2f}   (n={len(ms)})")
 
 
 def main() -> None:
