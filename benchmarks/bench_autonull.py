@@ -28,14 +28,14 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "host"))
 
-from nullsteer.autonull import Switcher, run_autonull  # noqa: E402
-from nullsteer.autonull_run import (predicted_optimum_ohm, solve_station_model,  # noqa: E402
+from nullsteer.reception.autonull import Switcher, run_autonull  # noqa: E402
+from nullsteer.reception.autonull_run import (predicted_optimum_ohm, solve_station_model,  # noqa: E402
                                     station_elevations_deg, table_termination)
-from nullsteer.bearing import null_bearing_deg  # noqa: E402
-from nullsteer.config import load_station, parse_freqs_mhz  # noqa: E402
-from nullsteer.measure import Meter  # noqa: E402
-from nullsteer.noise import NoiseCategory  # noqa: E402
-from nullsteer.sim.receiver import (ModelResponse, SimScenario, SimStation,  # noqa: E402
+from nullsteer.station.bearing import null_bearing_deg  # noqa: E402
+from nullsteer.station.config import load_station, parse_freqs_mhz  # noqa: E402
+from nullsteer.reception.measure import Meter  # noqa: E402
+from nullsteer.reception.noise import NoiseCategory  # noqa: E402
+from nullsteer.reception.virtual import (ModelResponse, SimScenario, SimStation,  # noqa: E402
                                     VirtualClock, VirtualReceiver)
 
 N_SCENARIOS = 60

@@ -78,9 +78,9 @@ def main() -> None:
                               env=env, capture_output=True, text=True, timeout=120)
         print(done.stdout.rstrip() or done.stderr)
 
-    from nullsteer.bundle import make_bundle
-    from nullsteer.config import load_station
-    from nullsteer.devices import parse_devices
+    from nullsteer.board.bundle import make_bundle
+    from nullsteer.station.config import load_station
+    from nullsteer.board.devices import parse_devices
 
     station = load_station(ROOT / "examples" / "station.toml")
     bundle = make_bundle(station, parse_devices(station)[0], None)

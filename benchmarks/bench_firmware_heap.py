@@ -19,7 +19,7 @@ from pathlib import Path
 
 import serial
 
-from nullsteer import wire
+from nullsteer.protocol import wire
 from nullsteer.errors import LinkError
 from nullsteer.sim import SimBoard, find_micropython, firmware_dir
 from nullsteer.sim.board import FAKE_MACHINE

@@ -27,8 +27,8 @@ from timing import summary  # noqa: E402
 from conftest import Broker  # noqa: E402  (the tests' broker fixture class)
 from mqtt_support import MqttSimBoard  # noqa: E402
 
-from nullsteer.controller import Controller  # noqa: E402
-from nullsteer.links import open_link  # noqa: E402
+from nullsteer.board.controller import Controller  # noqa: E402
+from nullsteer.board.links import open_link  # noqa: E402
 from nullsteer.sim import SimBoard, find_micropython  # noqa: E402
 from nullsteer.sim.board import MQTT_HEAP_BYTES  # noqa: E402
 

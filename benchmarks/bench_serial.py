@@ -16,8 +16,8 @@ import time
 
 from timing import summary
 
-from nullsteer.controller import Controller, FedEnd
-from nullsteer.links import open_link
+from nullsteer.board.controller import Controller, FedEnd
+from nullsteer.board.links import open_link
 from nullsteer.sim import DEFAULT_BOARD_CONFIG, SimBoard
 
 N = 200

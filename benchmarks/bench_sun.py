@@ -15,9 +15,9 @@ import time
 import zoneinfo
 from pathlib import Path
 
-from nullsteer.config import load_station
-from nullsteer.schedule import parse_schedule, plan
-from nullsteer.sun import sun_events, sun_events_for_dates
+from nullsteer.station.config import load_station
+from nullsteer.schedule.rules import parse_schedule, plan
+from nullsteer.schedule.sun import sun_events, sun_events_for_dates
 
 LAT, LON, ZONE = 53.412, -7.930, zoneinfo.ZoneInfo("Europe/Dublin")
 DAYS = [dt.date(2026, 1, 1) + dt.timedelta(days=k) for k in range(365)]

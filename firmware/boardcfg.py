@@ -6,7 +6,7 @@ Every problem raises :class:`BoardConfigError` naming the offending key.
 
 from array import array
 
-from drivercfg import parse_driver
+from drivercfg import BoardConfigError, parse_driver  # the error class lives in the lower reader
 from relays import ENDS, ROLE_LADDER, ROLE_OPEN, ROLE_PROTECT, ROLE_REVERSE, ROLES, Relay, State
 
 TOP_KEYS = ("board", "relays", "protect_ladder", "link", "boot", "safe_state", "state_file",
@@ -16,15 +16,6 @@ LINK_KEYS = ("kind", "port", "path", "id", "baud", "tx", "rx", "de_pin")
 PORTS = ("stdio", "uart", "pty")
 BOOT_POLICIES = ("restore", "safe")
 MAX_BITS = 16
-
-
-class BoardConfigError(ValueError):
-    """A bad board configuration value; ``key`` names it (e.g. ``relays[3].pin``)."""
-
-    def __init__(self, key: str, message: str) -> None:
-        super().__init__(key + ": " + message)
-        self.key = key
-        self.message = message
 
 
 class BoardConfig:

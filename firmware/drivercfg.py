@@ -2,8 +2,9 @@
 
 Read by ``boardcfg`` at boot and unloaded with it (the relay drivers themselves live in
 ``drivers.py``, loaded only when the board uses one). Schema: hardware_notes/
-relays-and-drivers.md and BOARD_CONFIG.md. Errors are ``boardcfg.BoardConfigError``
-naming the key, e.g. ``driver.addr`` or ``relays[3].reset_pin``.
+relays-and-drivers.md and BOARD_CONFIG.md. Errors are :class:`BoardConfigError`, defined here
+(``boardcfg`` imports it from this module, so neither reader imports the other in a
+circle), naming the key, e.g. ``driver.addr`` or ``relays[3].reset_pin``.
 """
 
 # KIND_GPIO, KIND_SHIFT, EXPANDER_ADDR and EXPANDER_SIZE are also in drivers.py, on
@@ -22,9 +23,16 @@ EXPANDER_ADDR = 0x20  # 0b0100 A2 A1 A0 with the address pins low (MCP23017 clas
 EXPANDER_SIZE = 16
 
 
+class BoardConfigError(ValueError):
+    """A bad board configuration value; ``key`` names it (e.g. ``relays[3].pin``)."""
+
+    def __init__(self, key: str, message: str) -> None:
+        super().__init__(key + ": " + message)
+        self.key = key
+        self.message = message
+
+
 def _error(key: str, message: str) -> Exception:
-    # the board reader's error class, imported late: boardcfg imports this module
-    from boardcfg import BoardConfigError
     return BoardConfigError(key, message)
 
 

@@ -419,7 +419,7 @@ class BoardMqtt:
         self.published = key
 
     def publish_discovery(self) -> None:
-        import discovery  # type: ignore[import-not-found]  # host/nullsteer/discovery.py
+        import discovery  # type: ignore[import-not-found]  # host/nullsteer/protocol/discovery.py
         items = discovery.entity_configs(
             self.m["discovery_prefix"], self.m["base"], self.m["id"],
             self.m["name"] or self.m["id"], self.info.get("fw", "?"),

@@ -29,7 +29,7 @@ fi
 WORK=$(mktemp -d)
 trap 'rm -rf "$WORK"' EXIT
 cp "$HERE"/*.py "$WORK"/
-cp "$HERE/../host/nullsteer/wire.py" "$WORK/wire.py"
+cp "$HERE/../host/nullsteer/protocol/wire.py" "$WORK/wire.py"
 cd "$WORK"
 MYPYPATH="$STUBS" "$PY" -m mypy --config-file "$HERE/mypy.ini" \
     --custom-typeshed-dir "$STUBS" --cache-dir "$WORK/.mypy_cache" \

@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from nullsteer.bearing import FedEnd, fed_end_for_null, null_bearing_deg
+from nullsteer.station.bearing import FedEnd, fed_end_for_null, null_bearing_deg
 from nullsteer.antenna.metrics import azimuth_pattern, null_of
 from nullsteer.antenna.mom import MomOperator
 from nullsteer.antenna.needed import needed_range

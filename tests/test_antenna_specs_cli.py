@@ -11,7 +11,7 @@ from nullsteer.antenna.specs import (parse_antenna, parse_band, parse_elevations
                                      parse_feed, parse_ground)
 from nullsteer.antenna.ports import LoopModel
 from nullsteer.cli import main
-from nullsteer.config import load_station
+from nullsteer.station.config import load_station
 from nullsteer.errors import ConfigError
 
 EXAMPLE = Path(__file__).resolve().parents[1] / "examples" / "station.toml"

@@ -9,7 +9,7 @@ import sys
 import pytest
 
 from nullsteer.errors import MeasurementError
-from nullsteer.measure import CommandSource, ManualSource, Meter, parse_level_db, power_mean_db
+from nullsteer.reception.measure import CommandSource, ManualSource, Meter, parse_level_db, power_mean_db
 
 
 def test_parse_levels():

@@ -14,7 +14,7 @@ import math
 import numpy as np
 import pytest
 
-from nullsteer.autonull import Reference, Switcher, run_autonull, search_null
+from nullsteer.reception.autonull import Reference, Switcher, run_autonull, search_null
 from nullsteer.errors import ConfigError
 
 OHMS = 390.0 * np.exp(np.linspace(0.0, math.log(2600 / 390), 128))

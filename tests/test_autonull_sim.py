@@ -17,9 +17,9 @@ import numpy as np
 import pytest
 
 from nullsteer.cli import main
-from nullsteer.config import load_station
-from nullsteer.noise import external_noise_figure_db
-from nullsteer.sim.receiver import Fading, SimScenario, VirtualReceiver
+from nullsteer.station.config import load_station
+from nullsteer.reception.noise import external_noise_figure_db
+from nullsteer.reception.virtual import Fading, SimScenario, VirtualReceiver
 
 ROOT = Path(__file__).resolve().parents[1]
 BOARD = ROOT / "examples" / "board-sim.json"
@@ -51,7 +51,7 @@ def _run(capsys, *argv):
 
 
 def test_autonull_through_firmware_matches_exhaustive(board, station_file, capsys):
-    from nullsteer.autonull_run import (build_virtual_receiver, solve_station_model,
+    from nullsteer.reception.autonull_run import (build_virtual_receiver, solve_station_model,
                                         table_termination)
 
     code, out, err = _run(capsys, "autonull", "--config", str(station_file), "--link", board.url,
@@ -68,15 +68,15 @@ def test_autonull_through_firmware_matches_exhaustive(board, station_file, capsy
     assert truth[res["best_mask"]] - min(truth.values()) <= 1.0
     assert res["null_db"] < -10
     # the preset was written for 160 m and the file still loads
-    from nullsteer.presets import parse_presets, resolve_target
+    from nullsteer.station.presets import parse_presets, resolve_target
 
     presets = parse_presets(load_station(station_file))
     assert resolve_target(presets["auto-west"], 1.83e6).ohms == pytest.approx(res["best_ohms"])
 
 
 def test_bad_command_exits_5_and_restores(board, station_file, capsys):
-    from nullsteer.controller import Controller, FedEnd
-    from nullsteer.links import open_link
+    from nullsteer.board.controller import Controller, FedEnd
+    from nullsteer.board.links import open_link
 
     with Controller(open_link(board.url)) as ctl:
         ctl.set_state(FedEnd.B, 17, False)

@@ -13,7 +13,7 @@ from pathlib import Path
 
 import pytest
 
-from nullsteer.autonull_run import board_termination, ladder_termination, table_termination
+from nullsteer.reception.autonull_run import board_termination, ladder_termination, table_termination
 from nullsteer.errors import ConfigError
 
 BOARD = Path(__file__).parents[1] / "examples" / "board-sim.json"

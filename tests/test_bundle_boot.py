@@ -4,7 +4,7 @@ The bundle folder is the MicroPython unix port's whole module path (plus the
 simulator's fake ``machine``, standing in for the board's built-in one); its ``main.py``
 runs as MicroPython runs it at boot (MicroPython docs: ``main.py`` is run after boot;
 from memory) and talks over stdio, which is the USB serial port on a board. Frames are
-checked with the one codec (nullsteer.wire; CRC-16/CCITT-FALSE per the CRC catalogue).
+checked with the one codec (nullsteer.protocol.wire; CRC-16/CCITT-FALSE per the CRC catalogue).
 """
 
 from __future__ import annotations
@@ -16,8 +16,8 @@ import time
 
 import pytest
 
-from nullsteer import wire
-from nullsteer.bundle import write_bundle
+from nullsteer.protocol import wire
+from nullsteer.board.bundle import write_bundle
 from nullsteer.sim import find_micropython
 from nullsteer.sim.board import FAKE_MACHINE
 
@@ -81,8 +81,8 @@ def test_bundled_board_boots_and_answers_over_stdio(booted):
 def test_bundled_mqtt_board_answers_through_the_broker(tmp_path, mqtt_broker):
     from conftest import unique
 
-    from nullsteer.controller import Controller
-    from nullsteer.links import open_link
+    from nullsteer.board.controller import Controller
+    from nullsteer.board.links import open_link
 
     dev = unique("bundle")
     base = unique("nsb")

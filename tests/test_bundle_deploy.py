@@ -18,8 +18,8 @@ from pathlib import Path
 
 import pytest
 
-from nullsteer.bundle import read_bundle, write_bundle
-from nullsteer.deploy import deploy_commands, parse_sha256sum
+from nullsteer.board.bundle import read_bundle, write_bundle
+from nullsteer.board.deploy import deploy_commands, parse_sha256sum
 from nullsteer.cli import main
 
 from test_bundle_files import bundle_for, station_dir

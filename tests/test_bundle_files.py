@@ -14,13 +14,13 @@ from pathlib import Path
 
 import pytest
 
-from nullsteer import wire
-from nullsteer.bundle import (BOARD_FILE, MANIFEST, BundleFile, check_board_config,
+from nullsteer.protocol import wire
+from nullsteer.board.bundle import (BOARD_FILE, MANIFEST, BundleFile, check_board_config,
                               check_firmware_version, firmware_version, make_bundle,
                               read_bundle, write_bundle)
 from nullsteer.cli import main
-from nullsteer.config import load_station
-from nullsteer.devices import parse_devices
+from nullsteer.station.config import load_station
+from nullsteer.board.devices import parse_devices
 from nullsteer.errors import ConfigError
 from nullsteer.sim.firmware import firmware_dir, parse_board_config
 
@@ -168,7 +168,7 @@ def four_relay_board() -> dict:
 
 def test_designed_ladder_must_match_the_board_relays(tmp_path, capsys):
     path = station_dir(tmp_path, board=four_relay_board())  # [ladder] relays = 7
-    from nullsteer.bundle import assemble_board_config
+    from nullsteer.board.bundle import assemble_board_config
     station = load_station(path)
     block = {"topology": "series-shorting", "resistors_ohm": [10.0] * 7, "base_ohm": 0.0,
              "table": [[0, 1.0]]}

@@ -17,7 +17,7 @@ import pytest
 from nullsteer.errors import ConfigError
 from nullsteer.sim import InProcessBoard
 from nullsteer.sim.firmware import parse_board_config
-from nullsteer import wire
+from nullsteer.protocol import wire
 
 EXAMPLE = json.loads((Path(__file__).parents[1] / "examples" / "board-sim.json").read_text())
 

@@ -11,7 +11,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from nullsteer import wire
+from nullsteer.protocol import wire
 from nullsteer.sim import InProcessBoard, load_firmware
 
 EXAMPLE = Path(__file__).parents[1] / "examples" / "board-sim.json"

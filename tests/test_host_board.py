@@ -15,11 +15,11 @@ from pathlib import Path
 
 import pytest
 
-from nullsteer import wire
+from nullsteer.protocol import wire
 from nullsteer.cli import main
-from nullsteer.controller import Controller, FedEnd
+from nullsteer.board.controller import Controller, FedEnd
 from nullsteer.errors import BoardError, LinkError
-from nullsteer.links import open_link
+from nullsteer.board.links import open_link
 from nullsteer.sim import DEFAULT_BOARD_CONFIG, SimBoard
 
 EXAMPLE_STATION = Path(__file__).parents[1] / "examples" / "station.toml"
@@ -191,7 +191,7 @@ def test_selftest_steps_every_relay_with_the_receiver_protected(board, capsys):
 
 
 def test_info_warns_on_a_firmware_mismatch(monkeypatch, capsys):
-    import nullsteer.bundle as bundle
+    import nullsteer.board.bundle as bundle
     monkeypatch.setattr(bundle, "firmware_version", lambda firmware=None: "9.0.0")
     code, out, err = run_cli(capsys, "info", "--link", "loop://", "--json")
     assert code == 0 and "warning" in err

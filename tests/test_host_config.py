@@ -4,11 +4,11 @@ from __future__ import annotations
 
 import pytest
 
-from nullsteer.bearing import angle_between_deg, fed_end_for_null, null_bearing_deg
-from nullsteer.config import Station, get_float, parse_freqs_mhz
-from nullsteer.devices import parse_devices, pick_device
+from nullsteer.station.bearing import angle_between_deg, fed_end_for_null, null_bearing_deg
+from nullsteer.station.config import Station, get_float, parse_freqs_mhz
+from nullsteer.board.devices import parse_devices, pick_device
 from nullsteer.errors import ConfigError
-from nullsteer.links import open_link, query_options
+from nullsteer.board.links import open_link, query_options
 from pathlib import Path
 
 

@@ -19,7 +19,7 @@ from pathlib import Path
 
 import pytest
 
-from nullsteer.bundle import FIRMWARE_KEYS
+from nullsteer.board.bundle import FIRMWARE_KEYS
 from nullsteer.sim import load_firmware
 
 ROOT = Path(__file__).parents[1]

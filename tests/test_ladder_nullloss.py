@@ -7,7 +7,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from nullsteer.config import load_station
+from nullsteer.station.config import load_station
 from nullsteer.errors import ConfigError
 from nullsteer.ladder import (LadderValues, Parasitics, board_ladder_block, evaluate,
                               get_topology, parse_ladder, predicted_null_loss)

@@ -16,9 +16,9 @@ import time
 import pytest
 from mqtt_support import MqttSimBoard, Watcher
 
-from nullsteer.controller import Controller, FedEnd
+from nullsteer.board.controller import Controller, FedEnd
 from nullsteer.errors import LinkError
-from nullsteer.links import open_link
+from nullsteer.board.links import open_link
 
 DEV = "flag-ne"
 T = f"nullsteer/{DEV}/"

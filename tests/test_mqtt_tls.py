@@ -31,9 +31,9 @@ from typing import Any
 import pytest
 from conftest import Broker, ThrowawayCA, new_ca, unique
 from mqtt_support import MqttSimBoard
-from nullsteer.controller import Controller, FedEnd
+from nullsteer.board.controller import Controller, FedEnd
 from nullsteer.errors import ConfigError, LinkError
-from nullsteer.links import open_link
+from nullsteer.board.links import open_link
 from nullsteer.sim import SimBoard
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "firmware"))

@@ -7,7 +7,7 @@ import math
 import pytest
 
 from nullsteer.errors import ConfigError
-from nullsteer.noise import (NoiseCategory, ReceiveChain, Stage, antenna_noise_kt0,
+from nullsteer.reception.noise import (NoiseCategory, ReceiveChain, Stage, antenna_noise_kt0,
                              external_noise_figure_db, friis_noise_factor, noise_budget,
                              noise_power_dbw, parse_noise, passive_stage,
                              required_preamp_gain_db, snr_loss_db)

@@ -17,7 +17,7 @@ from nullsteer.errors import ConfigError
 
 pytest.importorskip("matplotlib")
 
-from nullsteer.plots import azimuth_figure, path_figure, save_figure  # noqa: E402
+from nullsteer.report.plots import azimuth_figure, path_figure, save_figure  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[1]
 

@@ -14,8 +14,8 @@ import pytest
 from astral import Observer
 from astral import sun as asun
 
-from nullsteer.config import load_station
-from nullsteer.schedule import in_force, in_force_by_device, parse_schedule, plan
+from nullsteer.station.config import load_station
+from nullsteer.schedule.rules import in_force, in_force_by_device, parse_schedule, plan
 
 DUBLIN = zoneinfo.ZoneInfo("Europe/Dublin")
 SITE = '[site]\nlat_deg = 53.412\nlon_deg = -7.930\ntimezone = "Europe/Dublin"\n'

@@ -12,10 +12,10 @@ from pathlib import Path
 
 import pytest
 
-from nullsteer.config import Station, load_station
+from nullsteer.station.config import Station, load_station
 from nullsteer.errors import ConfigError
-from nullsteer.bearing import fed_end_for_null, null_bearing_deg
-from nullsteer.presets import (End, Target, parse_presets,
+from nullsteer.station.bearing import fed_end_for_null, null_bearing_deg
+from nullsteer.station.presets import (End, Target, parse_presets,
                                resolve_target)
 
 EXAMPLE = Path(__file__).resolve().parents[1] / "examples" / "station.toml"
@@ -107,7 +107,7 @@ def test_band_ranges_list_and_shared_edge():
     ("fed A", "presets.x"),
 ])
 def test_bad_preset_keys_name_the_key(preset, key):
-    # Station-file contract (nullsteer.config): one-line ConfigError naming the dotted key.
+    # Station-file contract (nullsteer.station.config): one-line ConfigError naming the dotted key.
     with pytest.raises(ConfigError) as info:
         parse_presets(station({"presets": {"x": preset}}))
     assert info.value.key == key

@@ -15,8 +15,8 @@ from astral.sun import sun
 from mqtt_support import BOARD_JSON, MqttSimBoard, board_config
 
 from nullsteer.cli import main
-from nullsteer.config import load_station
-from nullsteer.service import Service, ServiceOptions
+from nullsteer.station.config import load_station
+from nullsteer.schedule.service import Service, ServiceOptions
 
 EXAMPLE = Path(__file__).resolve().parents[1] / "examples" / "station.toml"
 ZONE = zoneinfo.ZoneInfo("Europe/Dublin")

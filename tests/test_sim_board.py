@@ -12,7 +12,7 @@ from pathlib import Path
 import pytest
 import serial
 
-from nullsteer import wire
+from nullsteer.protocol import wire
 from nullsteer.errors import ConfigError
 from nullsteer.sim import SimBoard
 

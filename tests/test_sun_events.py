@@ -16,8 +16,8 @@ import pytest
 from astral import Observer
 from astral import sun as asun
 
-from nullsteer.solar import SolarMethod
-from nullsteer.sun import SunEvent, sun_events, sun_events_for_dates
+from nullsteer.schedule.solar import SolarMethod
+from nullsteer.schedule.sun import SunEvent, sun_events, sun_events_for_dates
 
 UTC = dt.timezone.utc
 
@@ -96,7 +96,7 @@ def test_all_events_match_astral_mid_latitudes(lat, lon, zone):
 
 @pytest.mark.parametrize("lat,lon,zone", MID_SITES[:7])
 def test_sunrise_sunset_within_one_minute_below_56_deg(lat, lon, zone):
-    # astral [reference library]: the accuracy claimed in nullsteer.solar (about a minute).
+    # astral [reference library]: the accuracy claimed in nullsteer.schedule.solar (about a minute).
     tz = zoneinfo.ZoneInfo(zone)
     obs = Observer(lat, lon)
     for ours in sun_events_for_dates(lat, lon, DATES, tz):
@@ -106,7 +106,7 @@ def test_sunrise_sunset_within_one_minute_below_56_deg(lat, lon, zone):
 
 def test_fractional_year_series_within_five_minutes():
     # astral [reference library]: the NOAA GML fractional-year series is coarser
-    # (declination off by up to ~0.5 deg near the equinoxes, see nullsteer.solar);
+    # (declination off by up to ~0.5 deg near the equinoxes, see nullsteer.schedule.solar);
     # at 53.4 N it stays within 5 min.
     tz = zoneinfo.ZoneInfo("Europe/Dublin")
     obs = Observer(53.4, -7.9)

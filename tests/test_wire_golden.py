@@ -20,7 +20,7 @@ from pathlib import Path
 
 import pytest
 
-from nullsteer import wire
+from nullsteer.protocol import wire
 from nullsteer.sim import find_micropython
 
 GOLDEN = Path(__file__).parent / "golden"

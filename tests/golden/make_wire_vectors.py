@@ -11,7 +11,7 @@ are written literally below, not computed.
 import json
 from pathlib import Path
 
-from nullsteer import wire
+from nullsteer.protocol import wire
 
 HERE = Path(__file__).parent
 

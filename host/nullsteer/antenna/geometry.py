@@ -28,7 +28,7 @@ import numpy as np
 
 from nullsteer.antenna.feedline import C0_M_PER_S
 from nullsteer.antenna.specs import AntennaSpec
-from nullsteer.bearing import FedEnd
+from nullsteer.station.bearing import FedEnd
 from nullsteer.errors import ConfigError
 
 MIN_SEGMENTS_LOOP = 40

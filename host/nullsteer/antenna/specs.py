@@ -51,7 +51,7 @@ from typing import Any
 import numpy as np
 
 from nullsteer.antenna.feedline import Coax
-from nullsteer.config import (check_unknown, get_float, get_int, get_str,
+from nullsteer.station.config import (check_unknown, get_float, get_int, get_str,
                               parse_freqs_mhz)
 from nullsteer.errors import ConfigError
 

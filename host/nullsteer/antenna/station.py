@@ -50,7 +50,7 @@ def parse_station_band(table: dict[str, Any]) -> BandSpec:
 
 
 def station_loop(station: Any) -> StationLoop:
-    """Read the loop sections of ``station`` (a :class:`nullsteer.config.Station`);
+    """Read the loop sections of ``station`` (a :class:`nullsteer.station.config.Station`);
     bad values raise ConfigError naming the key."""
     return StationLoop(antenna=parse_antenna(station.section("antenna", required=True)),
                        ground=parse_ground(station.section("ground")),

@@ -66,14 +66,14 @@ def _progress(quiet: bool, budget: int):
 
 
 def run(args: argparse.Namespace) -> int:
-    from nullsteer.autonull import Reference
-    from nullsteer.autonull_run import (autonull_on_controller, board_state_reader,
+    from nullsteer.reception.autonull import Reference
+    from nullsteer.reception.autonull_run import (autonull_on_controller, board_state_reader,
                                         build_virtual_receiver, predicted_optimum_ohm,
                                         save_band_preset, solve_station_model,
                                         station_elevations_deg, board_termination)
-    from nullsteer.bearing import fed_end_for_null
-    from nullsteer.config import load_station
-    from nullsteer.measure import CommandSource, ManualSource, Meter, Source
+    from nullsteer.station.bearing import fed_end_for_null
+    from nullsteer.station.config import load_station
+    from nullsteer.reception.measure import CommandSource, ManualSource, Meter, Source
 
     freq_hz = args.freq * 1e6
     if args.reads < 1:
@@ -106,9 +106,9 @@ def run(args: argparse.Namespace) -> int:
         source: Source
         reads = args.reads
         if args.source == "sim":
-            from nullsteer.sim.receiver import SimSource
+            from nullsteer.reception.virtual import SimSource
 
-            from nullsteer.devices import parse_devices
+            from nullsteer.board.devices import parse_devices
 
             boards = [d.board_config for d in parse_devices(station)  # type: ignore[arg-type]
                       if d.board_config is not None and (not args.device or d.id == args.device)]

@@ -7,11 +7,11 @@ import signal
 import sys
 import threading
 
-from nullsteer import wire
-from nullsteer.bearing import fed_end_for_null, null_bearing_deg
+from nullsteer.protocol import wire
+from nullsteer.station.bearing import fed_end_for_null, null_bearing_deg
 from nullsteer.cli.common import add_board_options, add_json_flag, connect, positive_float, print_json
-from nullsteer.config import get_float, load_station
-from nullsteer.controller import BoardStatus, Controller, FedEnd
+from nullsteer.station.config import get_float, load_station
+from nullsteer.board.controller import BoardStatus, Controller, FedEnd
 from nullsteer.errors import ConfigError
 
 #: A wanted ohms value further than this ratio from every setting is refused.

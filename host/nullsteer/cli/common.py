@@ -65,17 +65,17 @@ def add_board_options(parser: argparse.ArgumentParser) -> None:
 
 
 def connect(args: argparse.Namespace):
-    """A :class:`~nullsteer.controller.Controller` for the board the arguments name.
+    """A :class:`~nullsteer.board.controller.Controller` for the board the arguments name.
 
     Precedence: ``--link``, then ``$NULLSTEER_LINK``, then the ``[[device]]`` of
     ``--config`` (``--device`` picks one of several).
     """
     import os
 
-    from nullsteer.config import load_station
-    from nullsteer.controller import Controller
-    from nullsteer.devices import parse_devices, pick_device
-    from nullsteer.links import open_link
+    from nullsteer.station.config import load_station
+    from nullsteer.board.controller import Controller
+    from nullsteer.board.devices import parse_devices, pick_device
+    from nullsteer.board.links import open_link
 
     url = args.link or os.environ.get("NULLSTEER_LINK")
     device = None

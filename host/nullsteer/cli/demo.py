@@ -18,7 +18,7 @@ from pathlib import Path
 from typing import Any
 
 from nullsteer.cli.common import add_json_flag, print_json
-from nullsteer.config import Station, load_station
+from nullsteer.station.config import Station, load_station
 from nullsteer.errors import ConfigError
 
 
@@ -50,11 +50,11 @@ def switching_order(events: list, since: int) -> str:
 def step_board(args: argparse.Namespace, station: Station, board_config: Path) -> dict[str, Any]:
     """Drive a simulated board: preset, flip, open; returns what happened."""
     from nullsteer.cli.board import describe
-    from nullsteer.controller import Controller
-    from nullsteer.links.serial_link import open_url as open_serial
-    from nullsteer.presets import parse_presets, resolve_target
+    from nullsteer.board.controller import Controller
+    from nullsteer.board.links.serial_link import open_url as open_serial
+    from nullsteer.station.presets import parse_presets, resolve_target
     from nullsteer.sim import SimBoard
-    from nullsteer import wire
+    from nullsteer.protocol import wire
 
     presets = parse_presets(station)
     out: dict[str, Any] = {"steps": []}
@@ -102,11 +102,11 @@ def step_board(args: argparse.Namespace, station: Station, board_config: Path) -
 
 def step_schedule(args: argparse.Namespace, station: Station, board_config: Path) -> list[str]:
     """The schedule service, time-shifted over the next day, flipping a simulated board."""
-    from nullsteer.controller import Controller
-    from nullsteer.links.serial_link import open_url as open_serial
-    from nullsteer.service import Service, ServiceOptions
+    from nullsteer.board.controller import Controller
+    from nullsteer.board.links.serial_link import open_url as open_serial
+    from nullsteer.schedule.service import Service, ServiceOptions
     from nullsteer.sim import SimBoard
-    from nullsteer.site import parse_site
+    from nullsteer.station.site import parse_site
 
     start = datetime.now(parse_site(station).tz).replace(second=0, microsecond=0)
     with SimBoard(board_config) as board:
@@ -121,10 +121,10 @@ def step_schedule(args: argparse.Namespace, station: Station, board_config: Path
 
 
 def run(args: argparse.Namespace) -> int:
-    from nullsteer.devices import parse_devices
+    from nullsteer.board.devices import parse_devices
     from nullsteer.ladder import write_board_ladder
     from nullsteer.ladder.station import design_for_station
-    from nullsteer.report import write_report
+    from nullsteer.report.builder import write_report
 
     station = load_station(args.config)
     args.out = Path(args.out)
@@ -164,7 +164,7 @@ def run(args: argparse.Namespace) -> int:
     summary["board"] = step_board(args, station, board_config)
 
     _say(args, "== 4. auto-null on the loudest interferer (virtual receiver)")
-    from nullsteer.autonull_run import demo_autonull
+    from nullsteer.reception.autonull_run import demo_autonull
 
     result = demo_autonull(args.config, board_config=board_config,
                            progress=None if args.json else _progress)

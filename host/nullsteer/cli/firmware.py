@@ -14,11 +14,11 @@ import shlex
 import shutil
 from pathlib import Path
 
-from nullsteer.bundle import Bundle, make_bundle, read_bundle, staged_folder, write_bundle
-from nullsteer.deploy import deploy, deploy_commands
+from nullsteer.board.bundle import Bundle, make_bundle, read_bundle, staged_folder, write_bundle
+from nullsteer.board.deploy import deploy, deploy_commands
 from nullsteer.cli.common import add_json_flag, print_json
-from nullsteer.config import load_station
-from nullsteer.devices import parse_devices, pick_device
+from nullsteer.station.config import load_station
+from nullsteer.board.devices import parse_devices, pick_device
 from nullsteer.errors import ConfigError
 
 
@@ -32,7 +32,7 @@ def bundle_from_config(config: str, device_id: str | None, redesign: bool = Fals
     The ladder table is the board file's own (written by ``nullsteer ladder
     --board-config``: it describes the resistors in the box); the designer runs only when
     the board file has none, or with ``redesign``."""
-    from nullsteer.bundle import designed_ladder_block, read_board_file
+    from nullsteer.board.bundle import designed_ladder_block, read_board_file
     station = load_station(config)
     device = pick_device(parse_devices(station), device_id)
     ladder = None

@@ -14,7 +14,7 @@ from dataclasses import replace
 from typing import Any
 
 from nullsteer.cli.common import add_json_flag, print_json
-from nullsteer.config import load_station
+from nullsteer.station.config import load_station
 from nullsteer.errors import ConfigError
 from nullsteer.ladder import (PARTS_CAUTION, LadderSpec, Parasitics, parse_ladder, parts_list,
                               settings_rows, wiring_diagram, write_board_ladder)

@@ -14,14 +14,14 @@ import sys
 
 import numpy as np
 
-from nullsteer.bearing import FedEnd, null_bearing_deg
+from nullsteer.station.bearing import FedEnd, null_bearing_deg
 from nullsteer.antenna.metrics import NULL_DEPTH_CEILING_DB, azimuth_pattern, null_of
 from nullsteer.antenna.needed import needed_range
 from nullsteer.antenna.ports import LoopModel
 from nullsteer.antenna.station import station_loop
 from nullsteer.antenna.specs import (BandSpec, parse_antenna, parse_elevations_deg, parse_feed, parse_ground)
 from nullsteer.cli.common import add_json_flag, print_json
-from nullsteer.config import load_station, parse_freqs_mhz
+from nullsteer.station.config import load_station, parse_freqs_mhz
 from nullsteer.errors import ConfigError
 
 _QUICK = ("length", "height", "bottom", "wire_mm", "ground", "sigma", "eps", "bearing")

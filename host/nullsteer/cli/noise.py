@@ -38,7 +38,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 
 def _spec(args: argparse.Namespace, table: dict):
-    from nullsteer.noise import parse_noise
+    from nullsteer.reception.noise import parse_noise
 
     t = dict(table)
     for flag, key in (("category", "category"), ("receiver_nf", "receiver_nf_db"),
@@ -61,8 +61,8 @@ def _spec(args: argparse.Namespace, table: dict):
 
 
 def run(args: argparse.Namespace) -> int:
-    from nullsteer.config import load_station, parse_freqs_mhz
-    from nullsteer.noise import model_noise_budgets, station_noise_budgets
+    from nullsteer.station.config import load_station, parse_freqs_mhz
+    from nullsteer.reception.noise import model_noise_budgets, station_noise_budgets
 
     station = load_station(args.config) if args.config else None
     spec = _spec(args, station.section("noise") if station else {})
@@ -80,7 +80,7 @@ def run(args: argparse.Namespace) -> int:
         budgets = station_noise_budgets(spec, freqs, [args.avg_gain_dbi] * len(freqs),
                                         [loss] * len(freqs))
     else:
-        from nullsteer.autonull_run import solve_station_model
+        from nullsteer.reception.autonull_run import solve_station_model
 
         budgets = model_noise_budgets(solve_station_model(station, freqs), spec, args.fed_end)
         if args.cable_loss is not None:

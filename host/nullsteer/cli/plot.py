@@ -10,7 +10,7 @@ from nullsteer.errors import ConfigError
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
-    from nullsteer.plots import KINDS
+    from nullsteer.report.plots import KINDS
 
     p = subparsers.add_parser("plot", help="draw a pattern, F/B or needed-range picture",
                               description="Draw one picture (PNG or SVG by the file suffix).")
@@ -50,9 +50,9 @@ def _autonull(path: str | None):
 
 
 def run_plot(args: argparse.Namespace) -> int:
-    from nullsteer.config import load_station
-    from nullsteer.plots import save_figure, station_figure, station_plot_data
-    from nullsteer.report import board_ladder
+    from nullsteer.station.config import load_station
+    from nullsteer.report.plots import save_figure, station_figure, station_plot_data
+    from nullsteer.report.builder import board_ladder
 
     station = load_station(args.config)
     table = [(int(m), float(o)) for m, o in board_ladder(station).get("table", [])]
@@ -65,8 +65,8 @@ def run_plot(args: argparse.Namespace) -> int:
 
 
 def run_report(args: argparse.Namespace) -> int:
-    from nullsteer.config import load_station
-    from nullsteer.report import write_report
+    from nullsteer.station.config import load_station
+    from nullsteer.report.builder import write_report
 
     page = write_report(load_station(args.config), args.output, args.fed_end,
                         _autonull(args.autonull))

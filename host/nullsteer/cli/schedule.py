@@ -10,9 +10,9 @@ import argparse
 import datetime as dt
 
 from nullsteer.cli.common import add_json_flag, print_json
-from nullsteer.config import load_station
+from nullsteer.station.config import load_station
 from nullsteer.errors import ConfigError
-from nullsteer.schedule import Action, Plan, Schedule, in_force, parse_schedule, plan
+from nullsteer.schedule.rules import Action, Plan, Schedule, in_force, parse_schedule, plan
 
 _MAX_DAYS = 366
 

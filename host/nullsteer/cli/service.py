@@ -1,4 +1,4 @@
-"""``nullsteer service``: run the station's schedule on its boards (see nullsteer.service).
+"""``nullsteer service``: run the station's schedule on its boards (see nullsteer.schedule.service).
 
 Examples::
 
@@ -17,10 +17,10 @@ import sys
 from typing import Any
 
 from nullsteer.cli.common import positive_float
-from nullsteer.config import load_station
+from nullsteer.station.config import load_station
 from nullsteer.errors import ConfigError
-from nullsteer.service import Service, ServiceOptions
-from nullsteer.site import parse_site
+from nullsteer.schedule.service import Service, ServiceOptions
+from nullsteer.station.site import parse_site
 
 
 def _non_negative(flag: str) -> Any:
@@ -81,7 +81,7 @@ def run(args: argparse.Namespace) -> int:
                              retry_s=args.retry)
     handler = logging.StreamHandler(sys.stdout)
     handler.setFormatter(logging.Formatter("%(message)s"))
-    logger = logging.getLogger("nullsteer.service")
+    logger = logging.getLogger("nullsteer.schedule.service")
     logger.addHandler(handler)
     logger.setLevel(logging.INFO)
     logger.propagate = False

@@ -12,9 +12,9 @@ import math
 
 from nullsteer.cli.common import add_json_flag, print_json
 from nullsteer.errors import ConfigError
-from nullsteer.site import get_zone
-from nullsteer.solar import SolarMethod
-from nullsteer.sun import SunEvent, SunEvents, sun_events
+from nullsteer.station.site import get_zone
+from nullsteer.schedule.solar import SolarMethod
+from nullsteer.schedule.sun import SunEvent, SunEvents, sun_events
 
 _LABELS = {SunEvent.DAWN: "civil dawn", SunEvent.SUNRISE: "sunrise",
            SunEvent.SUNSET: "sunset", SunEvent.DUSK: "civil dusk"}

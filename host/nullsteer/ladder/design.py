@@ -13,7 +13,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from nullsteer import wire
+from nullsteer.protocol import wire
 from nullsteer.errors import ConfigError
 from nullsteer.ladder.coverage import (ratio_error_pct, tolerance_shift, worst_case_error_pct,
                                        worst_log_error, worst_step_pct)

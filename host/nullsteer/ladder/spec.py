@@ -29,7 +29,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from nullsteer.antenna.feedline import Coax
-from nullsteer.config import check_unknown, get_float, get_int, get_str
+from nullsteer.station.config import check_unknown, get_float, get_int, get_str
 from nullsteer.errors import ConfigError
 from nullsteer.ladder.network import Parasitics
 from nullsteer.ladder.nullloss import DEFAULT_CEILING_DB

@@ -19,7 +19,7 @@ import time
 from pathlib import Path
 from typing import Any
 
-from nullsteer import wire
+from nullsteer.protocol import wire
 from nullsteer.errors import ConfigError, LinkError
 from nullsteer.sim.firmware import (discovery_source, find_micropython, firmware_dir,
                                     parse_board_config, wire_source)

@@ -2,7 +2,7 @@
 
 The firmware imports its modules by plain names (``import wire``, ``from relays import
 ...``) as it does on the board. :func:`load_firmware` registers them under those names in
-``sys.modules`` (``wire`` is this package's :mod:`nullsteer.wire`, the one codec), so the
+``sys.modules`` (``wire`` is this package's :mod:`nullsteer.protocol.wire`, the one codec), so the
 same code runs in-process for fast host tests.
 """
 
@@ -15,7 +15,7 @@ import sys
 from pathlib import Path
 from types import ModuleType, SimpleNamespace
 
-from nullsteer import wire
+from nullsteer.protocol import wire
 from nullsteer.errors import ConfigError, LinkError
 
 #: Firmware modules in dependency order (``main.py`` is the board entry point).
@@ -39,7 +39,7 @@ def wire_source() -> Path:
 
 def discovery_source() -> Path:
     """The discovery-config builder copied onto MQTT boards as ``discovery.py``."""
-    from nullsteer import discovery
+    from nullsteer.protocol import discovery
 
     return Path(discovery.__file__)
 

@@ -4,7 +4,7 @@ A source answers one question, "what is the level now?", as a float in dB (any f
 reference: dBm, dBFS, S-meter dB; only differences matter). Three kinds:
 
 ``sim``
-    The virtual receiver of the simulator (:mod:`nullsteer.sim.receiver`), which reads
+    The virtual receiver of the simulator (:mod:`nullsteer.reception.virtual`), which reads
     the simulated board's actual relays.
 ``command``
     A user command (argv, no shell) that prints one level in dB, e.g. a script asking

@@ -13,9 +13,9 @@ the ``serial://`` URL it prints.
 from __future__ import annotations
 
 from nullsteer.errors import LinkError
-from nullsteer.links import query_options
-from nullsteer.links.serial_link import SerialLink
-from nullsteer.links.serial_link import open_url as open_serial
+from nullsteer.board.links import query_options
+from nullsteer.board.links.serial_link import SerialLink
+from nullsteer.board.links.serial_link import open_url as open_serial
 
 
 class SimLink:

@@ -1,6 +1,6 @@
 """Transports to a board, chosen by URL scheme (as pyserial chooses its handlers).
 
-Every link moves whole protocol lines (see :mod:`nullsteer.wire`); it knows nothing of
+Every link moves whole protocol lines (see :mod:`nullsteer.protocol.wire`); it knows nothing of
 their meaning. Schemes:
 
 =========== ============================================ ==========================
@@ -28,13 +28,13 @@ from nullsteer.errors import ConfigError
 
 #: scheme -> module defining ``open_url(url: str, **options) -> Link``
 SCHEMES = {
-    "serial": "nullsteer.links.serial_link",
-    "socket": "nullsteer.links.serial_link",
-    "rfc2217": "nullsteer.links.serial_link",
-    "sim": "nullsteer.links.sim_link",
-    "loop": "nullsteer.links.loop_link",
-    "mqtt": "nullsteer.links.mqtt_link",
-    "mqtts": "nullsteer.links.mqtt_link",
+    "serial": "nullsteer.board.links.serial_link",
+    "socket": "nullsteer.board.links.serial_link",
+    "rfc2217": "nullsteer.board.links.serial_link",
+    "sim": "nullsteer.board.links.sim_link",
+    "loop": "nullsteer.board.links.loop_link",
+    "mqtt": "nullsteer.board.links.mqtt_link",
+    "mqtts": "nullsteer.board.links.mqtt_link",
 }
 
 

@@ -3,7 +3,7 @@
 Keys of each entry:
 
 ``id``          short name, letters/digits/``-``/``_`` (used in MQTT topics too)
-``link``        transport URL (see :mod:`nullsteer.links`)
+``link``        transport URL (see :mod:`nullsteer.board.links`)
 ``board``       the board config JSON (pins, roles, ladder table), relative to the file
 ``key_file``    optional file holding the shared signing key (hex), relative to the file
 ``key_env``     optional environment variable holding the shared key (hex)
@@ -18,7 +18,7 @@ import re
 from dataclasses import dataclass
 from pathlib import Path
 
-from nullsteer.config import Station, check_unknown, get_float, get_int, get_str
+from nullsteer.station.config import Station, check_unknown, get_float, get_int, get_str
 from nullsteer.errors import ConfigError
 
 _ID = re.compile(r"^[A-Za-z0-9_-]{1,32}$")

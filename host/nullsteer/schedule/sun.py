@@ -1,7 +1,7 @@
 """Sun events of a local calendar date: civil dawn, sunrise, sunset, civil dusk.
 
 The solar arithmetic (NOAA GML event equations, vectorised over days) is in
-:mod:`nullsteer.solar`. This module turns solar days into the events of a *local*
+:mod:`nullsteer.schedule.solar`. This module turns solar days into the events of a *local*
 calendar date in an IANA zone, DST-correct via :mod:`zoneinfo`: the event returned for
 a date is the one whose local date is that date, preferring the one of the solar day
 whose solar noon is nearest local noon (so a date holding two dusks, one just after
@@ -22,8 +22,8 @@ from typing import Any
 
 import numpy as np
 
-from nullsteer.site import get_zone
-from nullsteer.solar import (ZENITH_CIVIL_DEG, ZENITH_SUNRISE_DEG, SolarMethod, SunState,
+from nullsteer.station.site import get_zone
+from nullsteer.schedule.solar import (ZENITH_CIVIL_DEG, ZENITH_SUNRISE_DEG, SolarMethod, SunState,
                              event_minutes, solar_noon_minutes, utc_instant)
 
 
@@ -235,7 +235,7 @@ def sun_events(lat_deg: float, lon_deg: float, date: dt.date, tz: dt.tzinfo | st
         Zone (IANA name or tzinfo) of ``date`` and of the returned times.
     method : SolarMethod
         Source of declination and equation of time (default: Meeus, see
-        :mod:`nullsteer.solar`).
+        :mod:`nullsteer.schedule.solar`).
 
     Returns
     -------

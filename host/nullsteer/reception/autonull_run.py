@@ -1,13 +1,13 @@
 """Running an auto-null on a board: model start point, measurement source, presets.
 
-This is the I/O side of :mod:`nullsteer.autonull` (which stays a pure search):
+This is the I/O side of :mod:`nullsteer.reception.autonull` (which stays a pure search):
 
 * :func:`solve_station_model` (from :mod:`nullsteer.antenna.station`) solves the station's
   antenna model at one frequency;
 * :func:`predicted_optimum_ohm` is the search's start point;
 * :func:`build_virtual_receiver` makes the simulator's receiver for a station file;
 * :func:`autonull_on_controller` runs the search through a
-  :class:`~nullsteer.controller.Controller` (every setting really goes through the
+  :class:`~nullsteer.board.controller.Controller` (every setting really goes through the
   board), restoring the state the board was in if a measurement fails;
 * :func:`save_band_preset` records the result as a preset for that band in the station
   file;
@@ -28,11 +28,11 @@ from typing import Any
 import numpy as np
 
 from nullsteer.antenna.station import solve_station_model, station_elevations_deg
-from nullsteer.autonull import AutonullResult, Probe, Reference, Switcher, run_autonull
-from nullsteer.config import Station, load_station
+from nullsteer.reception.autonull import AutonullResult, Probe, Reference, Switcher, run_autonull
+from nullsteer.station.config import Station, load_station
 from nullsteer.errors import ConfigError, LinkError, MeasurementError, NullsteerError
-from nullsteer.measure import Meter, Source
-from nullsteer.noise import NoiseCategory, db_to_ratio, parse_noise
+from nullsteer.reception.measure import Meter, Source
+from nullsteer.reception.noise import NoiseCategory, db_to_ratio, parse_noise
 
 ProgressFn = Callable[[str, Probe | None, float | None], None]
 
@@ -96,7 +96,7 @@ def build_virtual_receiver(station: Station, solution: Any,
                            termination: Callable[[int, float], complex],
                            clock: Callable[[], float] | None = None) -> Any:
     """The simulator's receiver for this station: ``[sim]`` stations, ``[noise]`` chain."""
-    from nullsteer.sim.receiver import ModelResponse, VirtualReceiver, parse_scenario
+    from nullsteer.reception.virtual import ModelResponse, VirtualReceiver, parse_scenario
 
     scenario = parse_scenario(station)
     noise = parse_noise(station.section("noise"))
@@ -133,7 +133,7 @@ def autonull_on_controller(controller: Any, meter: Meter, freq_hz: float, fed_en
     :class:`LinkError` is re-raised as is: the board keeps the last state it applied
     (commands are absolute and the board persists its state).
     """
-    from nullsteer.controller import FedEnd
+    from nullsteer.board.controller import FedEnd
 
     table = controller.table()
     if not table:
@@ -175,8 +175,8 @@ _NAME = re.compile(r"^[A-Za-z0-9_-]{1,40}$")
 
 
 def band_of(freq_hz: float) -> str | None:
-    """The named band (see :data:`nullsteer.presets.BAND_EDGES_MHZ`) holding ``freq_hz``."""
-    from nullsteer.presets import BAND_EDGES_MHZ
+    """The named band (see :data:`nullsteer.station.presets.BAND_EDGES_MHZ`) holding ``freq_hz``."""
+    from nullsteer.station.presets import BAND_EDGES_MHZ
 
     f = freq_hz / 1e6
     for name, (lo, hi) in BAND_EDGES_MHZ.items():
@@ -225,7 +225,7 @@ def save_band_preset(station_path: str | Path, name: str, fed_end: str, ohms: fl
     bands[band] = float(ohms)
     new = text.rstrip("\n") + "\n\n" + _block(name, fed_end, float(ohms), bands)
     try:
-        from nullsteer.presets import parse_presets
+        from nullsteer.station.presets import parse_presets
 
         parse_presets(Station(path=path, raw=tomllib.loads(new)))
     except (tomllib.TOMLDecodeError, ConfigError) as exc:
@@ -258,10 +258,10 @@ def demo_autonull(station_path: str | Path, freq_mhz: float | None = None,
     board_config : path or None
         Board config for the simulated board; default the first device's.
     """
-    from nullsteer.bearing import fed_end_for_null
-    from nullsteer.controller import Controller
-    from nullsteer.devices import parse_devices
-    from nullsteer.sim.receiver import SimSource, parse_scenario
+    from nullsteer.station.bearing import fed_end_for_null
+    from nullsteer.board.controller import Controller
+    from nullsteer.board.devices import parse_devices
+    from nullsteer.reception.virtual import SimSource, parse_scenario
 
     station = load_station(station_path)
     scenario = parse_scenario(station)
@@ -290,8 +290,8 @@ def demo_autonull(station_path: str | Path, freq_mhz: float | None = None,
 
 def _open_sim(board_config: Path) -> Any:
     """A link to a freshly started simulated board (stopped when the link closes)."""
-    from nullsteer.links.serial_link import open_url as open_serial
-    from nullsteer.links.sim_link import SimLink
+    from nullsteer.board.links.serial_link import open_url as open_serial
+    from nullsteer.board.links.sim_link import SimLink
     from nullsteer.sim import SimBoard
 
     board = SimBoard(board_config)

@@ -8,7 +8,7 @@ added, in power:
 
 * the external noise of ITU-R P.372 for the chosen category, scaled by the loop's
   average realized gain (an inefficient loop sees less external noise too), plus the
-  thermal noise of its losses (see :mod:`nullsteer.noise`);
+  thermal noise of its losses (see :mod:`nullsteer.reception.noise`);
 * the receiving chain's own noise, (F - 1) kT0b.
 
 Fading: every station has a slow log-normal fade (a Gauss-Markov process in dB with a
@@ -34,9 +34,9 @@ from typing import Any, Protocol
 
 import numpy as np
 
-from nullsteer.config import Station, check_unknown, get_float, get_int, get_str
+from nullsteer.station.config import Station, check_unknown, get_float, get_int, get_str
 from nullsteer.errors import ConfigError
-from nullsteer.noise import (KT0_DBW_PER_HZ, NoiseCategory, antenna_noise_kt0,
+from nullsteer.reception.noise import (KT0_DBW_PER_HZ, NoiseCategory, antenna_noise_kt0,
                              external_noise_figure_db)
 
 SIM_KEYS = frozenset({"seed", "fading_sigma_db", "fading_tau_s", "rician_k_db",
@@ -301,7 +301,7 @@ class ModelResponse:
         return np.ravel(p)
 
     def average_gain_dbi(self, freq_hz: float, termination_ohm: complex, fed_end: str) -> float:
-        from nullsteer.noise import loop_noise_efficiency_db
+        from nullsteer.reception.noise import loop_noise_efficiency_db
 
         i = self.freq_index(freq_hz)
         key = (i, complex(termination_ohm), fed_end)

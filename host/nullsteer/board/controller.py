@@ -11,12 +11,12 @@ import time
 from collections.abc import Iterable
 from dataclasses import dataclass
 
-from nullsteer import wire
-from nullsteer.bearing import FedEnd
+from nullsteer.protocol import wire
+from nullsteer.station.bearing import FedEnd
 from nullsteer.errors import BoardError, ConfigError, LinkError
 
 __all__ = ["BoardInfo", "BoardState", "BoardStatus", "Controller", "FedEnd"]
-from nullsteer.links import Link
+from nullsteer.board.links import Link
 
 log = logging.getLogger(__name__)
 
@@ -106,7 +106,7 @@ class Controller:
     Parameters
     ----------
     link : Link
-        The transport (see :func:`nullsteer.links.open_link`).
+        The transport (see :func:`nullsteer.board.links.open_link`).
     timeout_s : float
         How long to wait for each reply, seconds.
     retries : int
@@ -190,7 +190,7 @@ class Controller:
     def firmware_mismatch(self) -> str | None:
         """One line of warning when the board's firmware is not the one this host ships
         (different major or minor version), else None."""
-        from nullsteer.bundle import check_firmware_version, firmware_version
+        from nullsteer.board.bundle import check_firmware_version, firmware_version
 
         return check_firmware_version(self.info().firmware, firmware_version())
 

@@ -16,7 +16,7 @@ ratio):
    best setting have been read or the probe budget is spent.
 
 Readings are taken once per visited setting (each reading is itself an average over a
-dwell, see :class:`nullsteer.measure.Meter`); a setting is never switched to twice.
+dwell, see :class:`nullsteer.reception.measure.Meter`); a setting is never switched to twice.
 Fading that is common to all settings shifts whole readings, which the bracket tolerates
 because it compares neighbours read a few seconds apart.
 

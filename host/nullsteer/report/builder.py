@@ -13,7 +13,7 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
-from nullsteer.config import Station
+from nullsteer.station.config import Station
 from nullsteer.errors import ConfigError
 
 _CSS = ("body{font-family:sans-serif;max-width:60em;margin:2em auto;color:#222}"
@@ -25,7 +25,7 @@ _CSS = ("body{font-family:sans-serif;max-width:60em;margin:2em auto;color:#222}"
 def board_ladder(station: Station, board_config: str | Path | None = None) -> dict[str, Any]:
     """The ``"ladder"`` block of ``board_config``, else of the first device's board config
     (empty if none)."""
-    from nullsteer.devices import parse_devices
+    from nullsteer.board.devices import parse_devices
 
     paths = [Path(board_config)] if board_config is not None else [
         d.board_config for d in parse_devices(station) if d.board_config is not None]
@@ -67,8 +67,8 @@ def write_report(station: Station, out_dir: str | Path, fed_end: str = "A",
         The ladder design behind that block; when given, the parts list carries each
         resistor's tolerance and power rating (``nullsteer.ladder.parts_list``).
     """
-    from nullsteer.noise import model_noise_budgets, parse_noise
-    from nullsteer.plots import save_figure, station_figure, station_plot_data
+    from nullsteer.reception.noise import model_noise_budgets, parse_noise
+    from nullsteer.report.plots import save_figure, station_figure, station_plot_data
 
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
@@ -143,8 +143,8 @@ def demo_report(station_path: str | Path, out_dir: str | Path) -> tuple[Path, An
 
     Returns (path of index.html, the AutonullResult).
     """
-    from nullsteer.autonull_run import demo_autonull
-    from nullsteer.config import load_station
+    from nullsteer.reception.autonull_run import demo_autonull
+    from nullsteer.station.config import load_station
 
     result = demo_autonull(station_path)
     out = Path(out_dir)

@@ -31,7 +31,7 @@ from dataclasses import dataclass, field
 from enum import Enum
 from typing import Any
 
-from nullsteer.config import check_unknown, get_float, get_str
+from nullsteer.station.config import check_unknown, get_float, get_str
 from nullsteer.errors import ConfigError
 
 #: kT0 in dBW/Hz for T0 = 290 K (ITU-R P.372 eq. 6).

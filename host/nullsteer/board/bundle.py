@@ -7,7 +7,7 @@ A bundle is a folder holding exactly what goes onto the board's file system:
   link_serial.py``), the
   one serial port module its link names (``port_stdio.py`` or ``port_uart.py``) and, for
   an MQTT board, ``mqtt_client.py mqtt_link.py net.py`` with ``discovery.py``;
-* ``wire.py``, copied from ``host/nullsteer/wire.py`` (the one protocol codec);
+* ``wire.py``, copied from ``host/nullsteer/protocol/wire.py`` (the one protocol codec);
 * ``board.json``: the device's board file (pins, roles, relay driver) with the ladder
   block, the board side of the link, the MQTT block (broker, device id, signing key,
   presets) and the ``[firmware]`` settings of the station file filled in, checked with
@@ -18,7 +18,7 @@ A bundle is a folder holding exactly what goes onto the board's file system:
 ``board.json`` may hold secrets (MQTT password, signing key): the bundle folder is made
 readable by its owner only.
 
-Putting a bundle on a board: :mod:`nullsteer.deploy`.
+Putting a bundle on a board: :mod:`nullsteer.board.deploy`.
 
 Station file keys read here, section ``[firmware]`` (all optional):
 
@@ -45,8 +45,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from nullsteer.config import Station, check_unknown, get_int, get_str
-from nullsteer.devices import Device
+from nullsteer.station.config import Station, check_unknown, get_int, get_str
+from nullsteer.board.devices import Device
 from nullsteer.errors import ConfigError
 
 CORE_MODULES = ("hw.py", "app.py", "relays.py", "drivercfg.py", "drivers.py", "boardcfg.py",
@@ -200,7 +200,7 @@ def board_link(existing: dict[str, Any] | None, fw: FirmwareSettings) -> dict[st
 def board_presets(station: Station) -> dict[str, dict[str, Any]]:
     """The station's presets in the board's form (fed end, ohms or open; per-band
     overrides stay on the host)."""
-    from nullsteer.presets import parse_presets
+    from nullsteer.station.presets import parse_presets
     out: dict[str, dict[str, Any]] = {}
     for name, p in parse_presets(station).items():
         entry: dict[str, Any] = {"end": p.fed_end.value, "open": p.open}
@@ -212,7 +212,7 @@ def board_presets(station: Station) -> dict[str, dict[str, Any]]:
 
 def mqtt_block(device: Device, station: Station, fw: FirmwareSettings) -> dict[str, Any]:
     """The board's ``"mqtt"`` block for a device linked by ``mqtt://`` or ``mqtts://``."""
-    from nullsteer.links.mqtt_link import parse_url
+    from nullsteer.board.links.mqtt_link import parse_url
     url = parse_url(device.link)
     block: dict[str, Any] = {"host": url["host"], "port": url["port"], "tls": url["tls"],
                              "id": url["device"], "base": url["base"],
@@ -336,7 +336,7 @@ def module_names(config: dict[str, Any]) -> list[str]:
 def make_bundle(station: Station, device: Device, ladder: dict[str, Any] | None = None,
                 firmware: Path | None = None) -> Bundle:
     """Collect the files for ``device`` (nothing is written; see :func:`write_bundle`)."""
-    from nullsteer import discovery, wire
+    from nullsteer.protocol import discovery, wire
     from nullsteer.sim.firmware import firmware_dir
     folder = firmware or firmware_dir()
     config = assemble_board_config(station, device, ladder)

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from collections import deque
 
-from nullsteer.links import query_options
+from nullsteer.board.links import query_options
 
 
 class LoopLink:

@@ -41,9 +41,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
-from nullsteer.bearing import FedEnd as End
-from nullsteer.bearing import fed_end_for_null
-from nullsteer.config import Station, check_unknown, get_bool, get_float, get_str
+from nullsteer.station.bearing import FedEnd as End
+from nullsteer.station.bearing import fed_end_for_null
+from nullsteer.station.config import Station, check_unknown, get_bool, get_float, get_str
 from nullsteer.errors import ConfigError
 
 #: Band names accepted in ``bands = { ... }``, with edges in MHz. Amateur bands take the

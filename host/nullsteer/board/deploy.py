@@ -1,4 +1,4 @@
-"""Putting a bundle (:mod:`nullsteer.bundle`) on a board with ``mpremote``.
+"""Putting a bundle (:mod:`nullsteer.board.bundle`) on a board with ``mpremote``.
 
 ``mpremote`` is found on PATH first, then beside the running Python. A deploy is four
 mpremote sessions:
@@ -24,7 +24,7 @@ import sys
 import time
 from pathlib import Path
 
-from nullsteer.bundle import Bundle
+from nullsteer.board.bundle import Bundle
 from nullsteer.errors import LinkError
 
 

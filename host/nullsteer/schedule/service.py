@@ -1,12 +1,12 @@
 """The long-running service: carry out the station's ``[[rule]]`` schedule on its boards.
 
 The schedule itself (sun events, presets, which action is in force) comes from the pure
-functions of :mod:`nullsteer.schedule` and :mod:`nullsteer.presets`; this module adds
+functions of :mod:`nullsteer.schedule.rules` and :mod:`nullsteer.station.presets`; this module adds
 time, boards and logging:
 
 * **catch-up** — at start, every device gets the action in force now (the latest one at
   or before now), so a host that was off during a sunset still ends up right;
-* **one line per action and device** on the ``nullsteer.service`` logger;
+* **one line per action and device** on the ``nullsteer.schedule.service`` logger;
 * **dry run** — log what would be done; no link is opened, nothing is sent;
 * **time shift** — a virtual clock starting at ``start`` and running ``speed`` times
   faster than real time (``speed`` 0: jump from one action to the next without
@@ -17,7 +17,7 @@ time, boards and logging:
   force at that moment (boards keep their state, so nothing is lost meanwhile).
 
 Targets with ``ohms`` are sent as the nearest ladder setting by ratio from the board's
-own table (:func:`nullsteer.wire.nearest_by_ratio`); ``open`` keeps the present setting.
+own table (:func:`nullsteer.protocol.wire.nearest_by_ratio`); ``open`` keeps the present setting.
 """
 
 from __future__ import annotations
@@ -28,17 +28,17 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass
 
-from nullsteer import wire
-from nullsteer.bearing import FedEnd
-from nullsteer.config import Station
-from nullsteer.controller import BoardStatus, Controller
-from nullsteer.devices import Device, parse_devices
+from nullsteer.protocol import wire
+from nullsteer.station.bearing import FedEnd
+from nullsteer.station.config import Station
+from nullsteer.board.controller import BoardStatus, Controller
+from nullsteer.board.devices import Device, parse_devices
 from nullsteer.errors import BoardError, ConfigError, LinkError
-from nullsteer.links import open_link
-from nullsteer.presets import Target
-from nullsteer.schedule import Action, in_force, parse_schedule, plan
+from nullsteer.board.links import open_link
+from nullsteer.station.presets import Target
+from nullsteer.schedule.rules import Action, in_force, parse_schedule, plan
 
-log = logging.getLogger("nullsteer.service")
+log = logging.getLogger("nullsteer.schedule.service")
 
 HORIZON = dt.timedelta(days=1)  # how far ahead the plan is computed at a time
 

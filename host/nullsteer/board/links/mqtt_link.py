@@ -53,7 +53,7 @@ from urllib.parse import unquote, urlsplit, urlunsplit
 import paho.mqtt.client as mqtt
 
 from nullsteer.errors import ConfigError, LinkError
-from nullsteer.links import query_options
+from nullsteer.board.links import query_options
 
 log = logging.getLogger(__name__)
 

@@ -19,7 +19,7 @@ import zoneinfo
 from dataclasses import dataclass
 from typing import Any
 
-from nullsteer.config import Station, check_unknown, get_float, get_str
+from nullsteer.station.config import Station, check_unknown, get_float, get_str
 from nullsteer.errors import ConfigError
 
 SITE_KEYS = frozenset({"lat_deg", "lon_deg", "timezone", "name", "callsign"})

@@ -229,7 +229,7 @@ class PlotData:
         return int(np.argmin(np.abs(self.freqs_hz - freq_hz)))
 
     def optimum(self, fi: int) -> float:
-        from nullsteer.autonull_run import predicted_optimum_ohm
+        from nullsteer.reception.autonull_run import predicted_optimum_ohm
 
         return predicted_optimum_ohm(self.solution, self.fed_end, self.elevations_deg, fi)
 
@@ -238,7 +238,7 @@ def station_plot_data(station: Any, fed_end: str = "A", freqs_hz: Sequence[float
                       table: Sequence[tuple[int, float]] | None = None) -> PlotData:
     """Solve the station's model for plotting (band frequencies unless ``freqs_hz``)."""
     from nullsteer.antenna.specs import freqs_array, parse_band
-    from nullsteer.autonull_run import solve_station_model, station_elevations_deg
+    from nullsteer.reception.autonull_run import solve_station_model, station_elevations_deg
 
     f = np.asarray(freqs_hz if freqs_hz is not None else freqs_array(parse_band(station.section("band"))))
     sol = solve_station_model(station, [float(x) for x in f])
@@ -251,7 +251,7 @@ def station_figure(kind: str, data: PlotData, freq_hz: float | None = None,
                    elevation_deg: float | None = None, termination_ohm: float | None = None,
                    autonull: dict[str, Any] | None = None) -> Any:
     """One of :data:`KINDS` for the station (``autonull``: a result's ``to_json()``)."""
-    from nullsteer.bearing import null_bearing_deg
+    from nullsteer.station.bearing import null_bearing_deg
 
     fi = data.freq_index(freq_hz)
     f = float(data.freqs_hz[fi])

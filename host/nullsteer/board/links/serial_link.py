@@ -18,9 +18,9 @@ from urllib.parse import urlsplit
 
 import serial
 
-from nullsteer import wire
+from nullsteer.protocol import wire
 from nullsteer.errors import ConfigError, LinkError
-from nullsteer.links import query_options
+from nullsteer.board.links import query_options
 
 DEFAULT_BAUD = 115200
 

@@ -6,7 +6,7 @@ Common open-source home-automation hubs read entity configs published (retained)
 ``<prefix>/status``, after which devices publish their configs again. Each config names
 its state and command topics, availability and a ``device`` block that groups the
 entities. This module builds those payloads; it is written in the common subset of
-CPython and MicroPython, like :mod:`nullsteer.wire`, and is copied onto the board as
+CPython and MicroPython, like :mod:`nullsteer.protocol.wire`, and is copied onto the board as
 ``discovery.py``: the board publishes its discovery itself (see firmware/mqtt_link.py),
 so the hub drives the antenna with the host switched off.
 

@@ -12,7 +12,7 @@ Each ``[[rule]]`` of the station file names a moment and a preset::
 
 ``dawn``/``dusk`` are civil dawn/dusk. Sun events are those of the site, or of
 ``where`` (greyline toward a far region); either way every crossing of the sun is used
-exactly once, in time order (see :func:`nullsteer.sun.solar_day_events`). When the sun
+exactly once, in time order (see :func:`nullsteer.schedule.sun.solar_day_events`). When the sun
 does not cross on a day (polar day or night at the place), the rule is skipped for
 that day and the skip is returned with its reason (and logged at INFO level).
 
@@ -32,12 +32,12 @@ from collections.abc import Iterable
 from dataclasses import dataclass
 from typing import Any
 
-from nullsteer.config import Station, check_unknown, get_float, get_str
+from nullsteer.station.config import Station, check_unknown, get_float, get_str
 from nullsteer.errors import ConfigError
-from nullsteer.presets import Preset, Target, parse_presets, resolve_target
-from nullsteer.site import Site, parse_site, read_lat_lon
-from nullsteer.solar import solar_noon_minutes, utc_instant
-from nullsteer.sun import SunEvent, missing_reason, solar_day_events
+from nullsteer.station.presets import Preset, Target, parse_presets, resolve_target
+from nullsteer.station.site import Site, parse_site, read_lat_lon
+from nullsteer.schedule.solar import solar_noon_minutes, utc_instant
+from nullsteer.schedule.sun import SunEvent, missing_reason, solar_day_events
 
 log = logging.getLogger(__name__)
 
