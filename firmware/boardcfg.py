@@ -234,4 +234,6 @@ def load_board(path: str) -> BoardConfig:
         raise BoardConfigError(path, "cannot read the board file")
     except ValueError:
         raise BoardConfigError(path, "not valid JSON")
+    except (MemoryError, RuntimeError):  # nesting deeper than the board's parser or heap allows
+        raise BoardConfigError(path, "too large or nested too deeply")
     return parse_board(obj)

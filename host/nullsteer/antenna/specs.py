@@ -151,8 +151,8 @@ def _point(value: Any, key: str) -> tuple[float, float, float]:
             or any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in value)):
         raise ConfigError(key, f"must be a point [along_m, across_m, height_m], got {value!r}")
     p = (float(value[0]), float(value[1]), float(value[2]))
-    if not all(math.isfinite(v) for v in p):
-        raise ConfigError(key, f"must be finite, got {value!r}")
+    if not all(math.isfinite(v) and abs(v) <= MAX_EXTENT_M for v in p):
+        raise ConfigError(key, f"must be finite and within {MAX_EXTENT_M:g} m, got {value!r}")
     return p
 
 
@@ -181,10 +181,18 @@ def _parse_polylines(t: dict[str, Any]):
     return tuple(lines), tuple(closed_raw), ends[0], ends[1]
 
 
+#: The largest extent (length, height) of a loop, metres: far beyond any receiving loop,
+#: small enough that the segment count cannot overflow before the memory guard.
+MAX_EXTENT_M = 1000.0
+
+
 def _parse_triangle(t: dict[str, Any]):
-    length = get_float(t, "length_m", _W, minimum=0.0, exclusive_min=True)
-    base_h = get_float(t, "base_height_m", _W, minimum=0.0, exclusive_min=True)
-    apex_h = get_float(t, "apex_height_m", _W, minimum=0.0, exclusive_min=True)
+    length = get_float(t, "length_m", _W, minimum=0.0, exclusive_min=True,
+                       maximum=MAX_EXTENT_M)
+    base_h = get_float(t, "base_height_m", _W, minimum=0.0, exclusive_min=True,
+                       maximum=MAX_EXTENT_M)
+    apex_h = get_float(t, "apex_height_m", _W, minimum=0.0, exclusive_min=True,
+                       maximum=MAX_EXTENT_M)
     offset = get_float(t, "apex_offset_m", _W, default=0.0, minimum=-length / 2,
                        maximum=length / 2)
     if abs(apex_h - base_h) < 1e-3:
@@ -212,9 +220,12 @@ def parse_antenna(table: dict[str, Any]) -> AntennaSpec:
     nseg = get_int(table, "segments_per_wire", _W, default=0, minimum=0, maximum=400)
     sigma = get_float(table, "wire_conductivity_s_per_m", _W, default=0.0, minimum=0.0)
     if shape is Shape.RECTANGLE:
-        length = get_float(table, "length_m", _W, minimum=0.0, exclusive_min=True)
-        height = get_float(table, "height_m", _W, minimum=0.0, exclusive_min=True)
-        bottom = get_float(table, "bottom_m", _W, minimum=0.0, exclusive_min=True)
+        length = get_float(table, "length_m", _W, minimum=0.0, exclusive_min=True,
+                           maximum=MAX_EXTENT_M)
+        height = get_float(table, "height_m", _W, minimum=0.0, exclusive_min=True,
+                           maximum=MAX_EXTENT_M)
+        bottom = get_float(table, "bottom_m", _W, minimum=0.0, exclusive_min=True,
+                           maximum=MAX_EXTENT_M)
         if bottom >= height:
             raise ConfigError(f"{_W}.bottom_m", f"must be below height_m ({height:g}), "
                               f"got {bottom:g}")
@@ -305,18 +316,17 @@ def parse_feed(table: dict[str, Any]) -> FeedSpec:
     check_unknown(table, {"transformer_ratio", "receiver_ohm", "coax_z0_ohm",
                           "coax_velocity_factor", "coax_loss_db_per_100m_at_10mhz",
                           "coax_length_m"}, w)
-    ratio = get_float(table, "transformer_ratio", w, default=9.0, minimum=0.0,
-                      exclusive_min=True, maximum=1e4)
-    rx = get_float(table, "receiver_ohm", w, default=50.0, minimum=0.0, exclusive_min=True)
+    ratio = get_float(table, "transformer_ratio", w, default=9.0, minimum=0.01, maximum=1e4)
+    rx = get_float(table, "receiver_ohm", w, default=50.0, minimum=0.1, maximum=1e6)
     length = get_float(table, "coax_length_m", w, default=0.0, minimum=0.0, maximum=1e5)
     coax = None
     if length > 0:
-        coax = Coax(z0_ohm=get_float(table, "coax_z0_ohm", w, default=50.0, minimum=0.0,
-                                     exclusive_min=True),
+        coax = Coax(z0_ohm=get_float(table, "coax_z0_ohm", w, default=50.0, minimum=1.0,
+                                     maximum=1000.0),
                     velocity_factor=get_float(table, "coax_velocity_factor", w, default=0.66,
                                               minimum=0.0, exclusive_min=True, maximum=1.0),
                     loss_db_per_100m=get_float(table, "coax_loss_db_per_100m_at_10mhz", w,
-                                               default=4.0, minimum=0.0),
+                                               default=4.0, minimum=0.0, maximum=100.0),
                     length_m=length)
     return FeedSpec(transformer_ratio=ratio, receiver_ohm=rx, coax=coax)
 

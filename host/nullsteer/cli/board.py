@@ -129,6 +129,16 @@ def choose_mask_for_ohms(ctl: Controller, ohms: float) -> tuple[int, float, floa
     return found
 
 
+def outside_table_warning(table: list[tuple[int, float]], ohms: float) -> str | None:
+    """A warning when ``ohms`` lies beyond the table's ends (the board then takes the end)."""
+    lo, hi = table[0][1], table[-1][1]
+    if ohms < lo:
+        return f"--ohms {ohms:g} is below the ladder's lowest setting {lo:.1f} ohm: set to that"
+    if ohms > hi:
+        return f"--ohms {ohms:g} is above the ladder's highest setting {hi:.1f} ohm: set to that"
+    return None
+
+
 def run_set(args: argparse.Namespace) -> int:
     if args.mask is None and args.ohms is None and not args.open and args.fed_end is None \
             and args.null_bearing is None:
@@ -154,6 +164,10 @@ def run_set(args: argparse.Namespace) -> int:
             mask, r_set, err = choose_mask_for_ohms(ctl, args.ohms)
             open_ = False
             extra = {"wanted_ohms": args.ohms, "error_pct": round(err, 2)}
+            outside = outside_table_warning(ctl.table(), args.ohms)
+            if outside:
+                sys.stderr.write(f"nullsteer: warning: {outside}\n")
+                extra["warnings"] = [outside]
             note = ((note + "\n") if note else "") + (
                 f"nearest setting to {args.ohms:g} ohm: mask {mask} = {r_set:.1f} ohm ({err:+.1f} %)")
         if args.open:
@@ -187,6 +201,23 @@ def selftest_summary(result: dict[str, str]) -> tuple[str, bool]:
     return text, readback == "fail"
 
 
+def selftest_fields(result: dict[str, str]) -> dict[str, object]:
+    """A TEST reply's fields with numbers as numbers, for ``--json``."""
+    typed: dict[str, object] = {}
+    for key, value in result.items():
+        if key in ("relays", "ms", "mask"):
+            typed[key] = int(value)
+        elif key == "ohms":
+            typed[key] = float(value)
+        elif key in ("open", "short"):
+            typed[key] = value == "1"
+        elif key == "bad":
+            typed[key] = [name for name in value.split(",") if name]
+        else:
+            typed[key] = value
+    return typed
+
+
 def run_selftest(args: argparse.Namespace) -> int:
     if not 0 <= args.dwell_ms <= 2000:
         raise ConfigError("--dwell-ms", f"must be 0..2000 ms, got {args.dwell_ms}")
@@ -194,7 +225,7 @@ def run_selftest(args: argparse.Namespace) -> int:
         result = ctl.self_test(dwell_ms=args.dwell_ms)
     text, failed = selftest_summary(result)
     if args.json:
-        print_json({**result, "readback_failed": failed})
+        print_json({**selftest_fields(result), "readback_failed": failed})
     else:
         print(text)
     return 6 if failed else 0

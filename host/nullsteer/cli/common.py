@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import sys
 from typing import Any
 
@@ -15,9 +16,27 @@ def add_json_flag(parser: argparse.ArgumentParser) -> None:
 
 
 def print_json(obj: Any) -> None:
-    """Print ``obj`` as indented JSON on stdout (numpy scalars are converted)."""
-    json.dump(obj, sys.stdout, indent=2, default=_json_default)
+    """Print ``obj`` as indented JSON on stdout (numpy scalars are converted).
+
+    Numbers that are not finite (an undefined ratio, a null of infinite depth) are
+    written as ``null``: RFC 8259 §6 has no NaN or Infinity, so ``--json`` output is
+    always valid JSON.
+    """
+    json.dump(finite_json(obj), sys.stdout, indent=2, allow_nan=False)
     sys.stdout.write("\n")
+
+
+def finite_json(obj: Any) -> Any:
+    """``obj`` with numpy values made plain and non-finite floats made None."""
+    if isinstance(obj, dict):
+        return {str(k): finite_json(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [finite_json(v) for v in obj]
+    if isinstance(obj, float):
+        return obj if math.isfinite(obj) else None
+    if obj is None or isinstance(obj, (str, int, bool)):
+        return obj
+    return finite_json(_json_default(obj))
 
 
 def _json_default(value: Any) -> Any:

@@ -35,13 +35,15 @@ def register(subparsers) -> None:
     p.add_argument("--height", type=float, help="top wire height, m")
     p.add_argument("--bottom", type=float, help="bottom wire height, m")
     p.add_argument("--wire-mm", dest="wire_mm", type=float, help="wire diameter, mm")
-    p.add_argument("--ground", choices=("perfect", "free", "real"))
+    p.add_argument("--ground", choices=("perfect", "free", "real"),
+                   help="ground under the loop (quick form; default real)")
     p.add_argument("--sigma", type=float, help="ground conductivity, S/m (real ground)")
     p.add_argument("--eps", type=float, help="ground relative permittivity (real ground)")
     p.add_argument("--bearing", type=float, help="compass bearing toward end A, degrees")
     p.add_argument("--freq", help="MHz, or start:stop:step")
     p.add_argument("--elevation", help="degrees, or lo:hi[:step] span")
-    p.add_argument("--fed-end", dest="fed_end", choices=("A", "B"), default="A")
+    p.add_argument("--fed-end", dest="fed_end", choices=("A", "B"), default="A",
+                   help="end feeding the receiver (default A)")
     add_json_flag(p)
     p.set_defaults(func=run)
 

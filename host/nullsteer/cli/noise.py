@@ -32,7 +32,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.add_argument("--cable-loss", type=float, metavar="DB",
                    help="coax loss, dB (default from [feed], or 0)")
     p.add_argument("--margin", type=float, metavar="DB", help="wanted margin, dB (default 10)")
-    p.add_argument("--fed-end", choices=("A", "B"), default="A")
+    p.add_argument("--fed-end", choices=("A", "B"), default="A",
+                   help="end feeding the receiver (default A)")
     add_json_flag(p)
     p.set_defaults(func=run)
 

@@ -21,7 +21,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                    help="frequency (default the middle of [band])")
     p.add_argument("--elevation", type=float, metavar="DEG", help="elevation for azimuth/F-B")
     p.add_argument("--ohms", type=positive_float("--ohms"), help="termination (default optimum)")
-    p.add_argument("--fed-end", choices=("A", "B"), default="A")
+    p.add_argument("--fed-end", choices=("A", "B"), default="A",
+                   help="end feeding the receiver (default A)")
     p.add_argument("--autonull", metavar="FILE", help="auto-null JSON output (for KIND path)")
     p.set_defaults(func=run_plot)
 
@@ -29,7 +30,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                               description="Write one HTML page: pictures, ladder, parts, noise.")
     r.add_argument("--config", required=True, metavar="FILE", help="station file (TOML)")
     r.add_argument("-o", "--output", required=True, metavar="DIR", help="folder to write")
-    r.add_argument("--fed-end", choices=("A", "B"), default="A")
+    r.add_argument("--fed-end", choices=("A", "B"), default="A",
+                   help="end feeding the receiver (default A)")
     r.add_argument("--autonull", metavar="FILE", help="auto-null JSON output to include")
     r.set_defaults(func=run_report)
 

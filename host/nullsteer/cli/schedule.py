@@ -13,6 +13,7 @@ from nullsteer.cli.common import add_json_flag, print_json
 from nullsteer.station.config import load_station
 from nullsteer.errors import ConfigError
 from nullsteer.schedule.rules import Action, Plan, Schedule, in_force, parse_schedule, plan
+from nullsteer.schedule.sun import check_date
 
 _MAX_DAYS = 366
 
@@ -49,6 +50,7 @@ def _start(text: str | None, zone: dt.tzinfo) -> dt.datetime:
         value = dt.datetime.fromisoformat(text)
     except ValueError:
         raise ConfigError("--from", f"must be an ISO 8601 date or date-time, got {text!r}") from None
+    check_date(value.date(), "--from")
     return value.replace(tzinfo=zone) if value.tzinfo is None else value.astimezone(zone)
 
 

@@ -20,6 +20,7 @@ from nullsteer.cli.common import positive_float
 from nullsteer.station.config import load_station
 from nullsteer.errors import ConfigError
 from nullsteer.schedule.service import Service, ServiceOptions
+from nullsteer.schedule.sun import check_date
 from nullsteer.station.site import parse_site
 
 
@@ -67,6 +68,7 @@ def parse_start(text: str | None, zone: dt.tzinfo) -> dt.datetime | None:
     except ValueError:
         raise ConfigError("--from", f"expected an ISO date-time such as 2026-06-21T18:00, "
                                     f"got {text!r}") from None
+    check_date(value.date(), "--from")
     return value.replace(tzinfo=zone) if value.tzinfo is None else value
 
 

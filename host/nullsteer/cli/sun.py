@@ -14,7 +14,7 @@ from nullsteer.cli.common import add_json_flag, print_json
 from nullsteer.errors import ConfigError
 from nullsteer.station.site import get_zone
 from nullsteer.schedule.solar import SolarMethod
-from nullsteer.schedule.sun import SunEvent, SunEvents, sun_events
+from nullsteer.schedule.sun import SunEvent, SunEvents, check_date, sun_events
 
 _LABELS = {SunEvent.DAWN: "civil dawn", SunEvent.SUNRISE: "sunrise",
            SunEvent.SUNSET: "sunset", SunEvent.DUSK: "civil dusk"}
@@ -50,9 +50,10 @@ def _date(text: str | None, zone: dt.tzinfo) -> dt.date:
     if text is None:
         return dt.datetime.now(zone).date()
     try:
-        return dt.date.fromisoformat(text)
+        date = dt.date.fromisoformat(text)
     except ValueError:
         raise ConfigError("--date", f"must be a date YYYY-MM-DD, got {text!r}") from None
+    return check_date(date, "--date")
 
 
 def _hm(seconds: float) -> str:

@@ -73,7 +73,10 @@ class CommandSource:
     name = "command"
 
     def __init__(self, argv: Sequence[str] | str, timeout_s: float = 10.0) -> None:
-        self.argv = shlex.split(argv) if isinstance(argv, str) else list(argv)
+        try:
+            self.argv = shlex.split(argv) if isinstance(argv, str) else list(argv)
+        except ValueError as exc:  # e.g. "No closing quotation"
+            raise ConfigError("--command", f"cannot split {argv!r} into words: {exc}") from None
         if not self.argv:
             raise ConfigError("--command", "is empty")
         if not timeout_s > 0:

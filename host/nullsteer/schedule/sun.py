@@ -22,6 +22,7 @@ from typing import Any
 
 import numpy as np
 
+from nullsteer.errors import ConfigError
 from nullsteer.station.site import get_zone
 from nullsteer.schedule.solar import (ZENITH_CIVIL_DEG, ZENITH_SUNRISE_DEG, SolarMethod, SunState,
                              event_minutes, solar_noon_minutes, utc_instant)
@@ -54,6 +55,20 @@ class SolarDayEvent:
     event: SunEvent
     when: dt.datetime | None
     state: SunState
+
+
+#: Years in which dates are taken: the span over which the default method (Meeus' low-accuracy
+#: solar coordinates, see :mod:`nullsteer.schedule.solar`) states its accuracy.
+VALID_YEARS = (1900, 2100)
+
+
+def check_date(date: dt.date, key: str) -> dt.date:
+    """``date`` unchanged, or a ConfigError naming ``key`` outside :data:`VALID_YEARS`."""
+    lo, hi = VALID_YEARS
+    if not lo <= date.year <= hi:
+        raise ConfigError(key, f"the sun's position is computed for the years {lo}..{hi}, "
+                               f"got {date.isoformat()}")
+    return date
 
 
 def solar_day_events(lat_deg: float, lon_deg: float, first_ordinal: int, n_days: int,

@@ -43,8 +43,12 @@ def read_board_config(board_config: dict | str | os.PathLike) -> dict:
         return json.loads(path.read_text())
     except OSError as exc:
         raise ConfigError(str(path), f"cannot read board config: {exc.strerror}") from None
+    except UnicodeDecodeError:
+        raise ConfigError(str(path), "board config is not UTF-8 text") from None
     except ValueError as exc:
         raise ConfigError(str(path), f"board config is not JSON: {exc}") from None
+    except RecursionError:
+        raise ConfigError(str(path), "board config is nested too deeply to be a board config") from None
 
 
 class SimBoard:

@@ -1,14 +1,15 @@
 """Station configuration: the TOML file a user writes, and typed readers for its keys.
 
-A station file has sections ``[site]``, ``[antenna]``, ``[ground]``, ``[band]``,
-``[feed]``, ``[ladder]``, ``[noise]``, ``[[device]]``, ``[presets]``, ``[[rule]]``,
-``[mqtt]`` (see ``examples/station.toml``). Each subsystem parses its own section with
-the readers below, so that every bad value is reported as a one-line
-:class:`~nullsteer.errors.ConfigError` naming the dotted key (exit code 2).
+A station file has the sections of :data:`SECTIONS` (see ``examples/station.toml``); any
+other top-level name is refused when the file is loaded, with a "did you mean". Each
+subsystem parses its own section with the readers below, so that every bad value is
+reported as a one-line :class:`~nullsteer.errors.ConfigError` naming the dotted key
+(exit code 2), and unknown keys inside a section are refused by :func:`check_unknown`.
 """
 
 from __future__ import annotations
 
+import difflib
 import math
 import tomllib
 from dataclasses import dataclass, field
@@ -18,6 +19,35 @@ from typing import Any
 from nullsteer.errors import ConfigError
 
 _MISSING = object()
+
+#: The top-level names of a station file: tables (``[name]``) and arrays of tables
+#: (``[[name]]``).
+SECTIONS: dict[str, str] = {
+    "site": "table", "antenna": "table", "ground": "table", "band": "table", "feed": "table",
+    "ladder": "table", "noise": "table", "presets": "table", "firmware": "table", "sim": "table",
+    "device": "array", "rule": "array",
+}
+
+
+def did_you_mean(word: str, choices: Any) -> str:
+    """`` (did you mean 'x'?)`` for the closest of ``choices``, or an empty string."""
+    close = difflib.get_close_matches(word, [str(c) for c in choices], n=1, cutoff=0.6)
+    return f" (did you mean {close[0]!r}?)" if close else ""
+
+
+def check_sections(raw: dict[str, Any]) -> None:
+    """Refuse top-level names that are not :data:`SECTIONS` or have the wrong form."""
+    for name, value in raw.items():
+        kind = SECTIONS.get(name)
+        if kind is None:
+            arrays = [n for n, k in SECTIONS.items() if k == "array"]
+            known = ", ".join(f"[[{n}]]" if n in arrays else f"[{n}]" for n in SECTIONS)
+            raise ConfigError(name, f"unknown section{did_you_mean(name, SECTIONS)}; "
+                                    f"a station file has {known}")
+        if kind == "array" and not (isinstance(value, list) and all(isinstance(v, dict) for v in value)):
+            raise ConfigError(name, f"must be an array of tables: write [[{name}]]")
+        if kind == "table" and not isinstance(value, dict):
+            raise ConfigError(name, f"must be a table: write [{name}]")
 
 
 @dataclass(frozen=True)
@@ -58,10 +88,14 @@ def load_station(path: str | Path) -> Station:
         text = p.read_text(encoding="utf-8")
     except OSError as exc:
         raise ConfigError("--config", f"cannot read {p}: {exc.strerror}") from None
+    except UnicodeDecodeError as exc:
+        raise ConfigError("--config", f"{p} is not UTF-8 text (byte {exc.start}): "
+                                      "save it as UTF-8") from None
     try:
         raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ConfigError("--config", f"{p} is not valid TOML: {exc}") from None
+    check_sections(raw)
     return Station(path=p, raw=raw)
 
 
@@ -129,7 +163,8 @@ def check_unknown(table: dict[str, Any], allowed: set[str] | frozenset[str], whe
     for key in table:
         if key not in allowed:
             name = f"{where}.{key}" if where else key
-            raise ConfigError(name, f"unknown key (expected one of: {', '.join(sorted(allowed))})")
+            raise ConfigError(name, f"unknown key{did_you_mean(str(key), allowed)} "
+                                    f"(expected one of: {', '.join(sorted(allowed))})")
 
 
 def parse_freqs_mhz(value: Any, key: str) -> list[float]:

@@ -111,6 +111,8 @@ def parse_url(url: str) -> dict[str, Any]:
         timeout_s = float(options.get("connect_timeout", "5"))
     except ValueError as exc:
         raise ConfigError("--link", f"bad number in {url!r}: {exc}") from None
+    if not 0 < timeout_s <= 600:  # also refuses nan and inf
+        raise ConfigError("--link", f"connect_timeout must be > 0 and at most 600 s, got {timeout_s:g}")
     if not 5 <= keepalive <= 3600:
         raise ConfigError("--link", f"keepalive must be 5..3600 s, got {keepalive}")
     password = unquote(parts.password) if parts.password is not None else None
