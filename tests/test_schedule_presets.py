@@ -28,9 +28,9 @@ def station(raw: dict) -> Station:
 def test_example_station_presets():
     # examples/station.toml (the documented demo): three presets, all resolvable.
     presets = parse_presets(load_station(EXAMPLE))
-    assert resolve_target(presets["dx-east"]) == Target(End.B, 1300.0, False)
-    assert resolve_target(presets["dx-west"]) == Target(End.A, 1300.0, False)
-    fig8 = resolve_target(presets["figure8"])
+    assert resolve_target(presets["dx-east"]) == Target(End.A, 1300.0, False)
+    assert resolve_target(presets["dx-west"]) == Target(End.B, 1300.0, False)
+    fig8 = resolve_target(presets["no-null"])
     assert fig8.open and fig8.ohms is None
 
 

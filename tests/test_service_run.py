@@ -3,6 +3,7 @@ library used only in tests), CLI errors, and a real run on a simulated MQTT boar
 
 from __future__ import annotations
 
+import re
 import datetime as dt
 import math
 import shutil
@@ -23,7 +24,8 @@ ZONE = zoneinfo.ZoneInfo("Europe/Dublin")
 
 
 def station_file(tmp_path: Path, link: str) -> Path:
-    text = EXAMPLE.read_text().replace('link = "sim://"', f'link = "{link}"')
+    text = re.sub(r'^link = "[^"]*"', f'link = "{link}"', EXAMPLE.read_text(), count=1,
+                  flags=re.M)
     assert f'link = "{link}"' in text
     path = tmp_path / "station.toml"
     path.write_text(text)
@@ -45,7 +47,7 @@ def test_dry_run_over_a_day_sends_nothing_and_follows_the_sun(tmp_path, capsys):
     assert code == 0
     lines = capsys.readouterr().out.strip().splitlines()
     assert len(lines) == 3  # catch-up, then the two rules of the day
-    assert "catch-up" in lines[0] and "dx-west" in lines[0]
+    assert "catch-up" in lines[0] and "dx-east" in lines[0]
     assert all("dry run, nothing sent" in line for line in lines)
     when = [dt.datetime.fromisoformat(line.split(" ")[0]) for line in lines]
     day = dt.date(2026, 6, 21)
@@ -53,8 +55,8 @@ def test_dry_run_over_a_day_sends_nothing_and_follows_the_sun(tmp_path, capsys):
     # tolerance 2 min: the NOAA method vs astral (REFERENCES.md, "Sun")
     expect_west = astral_event(53.412, -7.930, day, "sunset") - dt.timedelta(minutes=30)
     expect_east = astral_event(40.1, -75.3, day, "sunrise")
-    assert abs((when[1] - expect_east).total_seconds()) < 120 and "dx-east" in lines[1]
-    assert abs((when[2] - expect_west).total_seconds()) < 120 and "dx-west" in lines[2]
+    assert abs((when[1] - expect_east).total_seconds()) < 120 and "dx-west" in lines[1]
+    assert abs((when[2] - expect_west).total_seconds()) < 120 and "dx-east" in lines[2]
     # the catch-up action is yesterday's sunset rule
     prev = astral_event(53.412, -7.930, day - dt.timedelta(days=1), "sunset")
     assert abs((when[0] - (prev - dt.timedelta(minutes=30))).total_seconds()) < 120
@@ -84,18 +86,18 @@ def test_bad_arguments_exit_2(tmp_path, capsys, argv, flag):
 def test_service_sets_the_board_over_mqtt(tmp_path, make_broker):
     broker = make_broker()
     table = [tuple(r) for r in board_config()["ladder"]["table"]]
-    mask_1300 = min(table, key=lambda r: abs(math.log(1300.0 / r[1])))[0]  # nearest by ratio (preset dx-west)
+    mask_1300 = min(table, key=lambda r: abs(math.log(1300.0 / r[1])))[0]  # nearest by ratio (preset dx-east)
     blk = {"host": broker.host, "port": broker.port, "id": "flag-ne"}
     with MqttSimBoard(blk) as board:
         path = station_file(tmp_path, broker.url("flag-ne"))
-        # start just before the site's sunset rule: catch-up gives dx-east (fed B),
-        # then the sunset rule (dx-west, fed A) fires within the hour
+        # start just before the site's sunset rule: catch-up gives dx-west (fed B),
+        # then the sunset rule (dx-east, fed A) fires within the hour
         start = astral_event(53.412, -7.930, dt.date(2026, 12, 1), "sunset") - \
             dt.timedelta(minutes=40)
         svc = Service(load_station(path), ServiceOptions(start=start, speed=0.0,
                                                          days=1.0 / 24))
         assert svc.run() == 0
         assert len(svc.lines) == 2, svc.lines
-        assert "catch-up" in svc.lines[0] and "dx-east" in svc.lines[0]
-        assert "dx-west" in svc.lines[1] and "FAILED" not in " ".join(svc.lines)
+        assert "catch-up" in svc.lines[0] and "dx-west" in svc.lines[0]
+        assert "dx-east" in svc.lines[1] and "FAILED" not in " ".join(svc.lines)
         assert board.state() == ("A", mask_1300, False)

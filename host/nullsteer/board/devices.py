@@ -3,7 +3,9 @@
 Keys of each entry:
 
 ``id``          short name, letters/digits/``-``/``_`` (used in MQTT topics too)
-``link``        transport URL (see :mod:`nullsteer.board.links`)
+``link``        transport URL (see :mod:`nullsteer.board.links`); for ``sim://`` a relative
+                ``state=DIR`` is taken relative to the file, so a simulated board keeps its
+                relay state from one command to the next as a real one does
 ``board``       the board config JSON (pins, roles, ladder table), relative to the file
 ``key_file``    optional file holding the shared signing key (hex), relative to the file
 ``key_env``     optional environment variable holding the shared key (hex)
@@ -17,6 +19,7 @@ import os
 import re
 from dataclasses import dataclass
 from pathlib import Path
+from urllib.parse import parse_qsl, urlencode, urlsplit
 
 from nullsteer.station.config import Station, check_unknown, get_float, get_int, get_str
 from nullsteer.errors import ConfigError
@@ -48,6 +51,16 @@ def _read_key(text: str, where: str) -> bytes:
     return key
 
 
+def _resolve_sim_state(station: Station, link: str) -> str:
+    """``link`` with a relative ``state=`` folder of a ``sim://`` URL made absolute."""
+    parts = urlsplit(link)
+    if parts.scheme != "sim":
+        return link
+    query = parse_qsl(parts.query, keep_blank_values=True)
+    fixed = [(k, str(station.resolve(v).resolve()) if k == "state" and v else v) for k, v in query]
+    return f"sim://{parts.netloc}{parts.path}" + (f"?{urlencode(fixed, safe='/')}" if fixed else "")
+
+
 def parse_device(station: Station, table: dict, index: int) -> Device:
     where = f"device[{index}]"
     check_unknown(table, _KEYS, where)
@@ -57,6 +70,7 @@ def parse_device(station: Station, table: dict, index: int) -> Device:
     link = get_str(table, "link", where)
     if "://" not in link:
         raise ConfigError(f"{where}.link", f"expected a URL such as serial:///dev/ttyUSB0, got {link!r}")
+    link = _resolve_sim_state(station, link)
     board = table.get("board")
     board_path = station.resolve(get_str(table, "board", where)) if board is not None else None
     key = None

@@ -197,8 +197,10 @@ def _progress(text: str, probe: Any = None, level_db: float | None = None) -> No
 
 def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("demo", help="the main job end to end on a simulated board")
-    p.add_argument("--config", default="examples/station.toml", metavar="FILE",
-                   help="station file (default: the invented demo station)")
+    from nullsteer.sim import EXAMPLE_STATION
+
+    p.add_argument("--config", default=EXAMPLE_STATION, metavar="FILE",
+                   help="station file (default: the invented demo station in examples/)")
     p.add_argument("--out", default="out/demo", metavar="DIR", help="where to write the report")
     add_json_flag(p)
     p.set_defaults(func=run)

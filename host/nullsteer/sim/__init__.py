@@ -18,3 +18,5 @@ __all__ = ["SimBoard", "InProcessBoard", "RelayEvent", "read_board_config", "fin
 
 #: The demo board config (7 ladder relays, reversal, protect, open; a ladder table).
 DEFAULT_BOARD_CONFIG = str(Path(__file__).resolve().parents[3] / "examples" / "board-sim.json")
+#: The invented demo station file beside it (the demo's default, from any folder).
+EXAMPLE_STATION = str(Path(DEFAULT_BOARD_CONFIG).with_name("station.toml"))

@@ -3,13 +3,13 @@
 ``[presets]`` of the station file maps a name to an inline table::
 
     [presets]
-    dx-east  = { fed_end = "B", ohms = 900.0 }
-    dx-west  = { null_bearing_deg = 245.0, ohms = 900.0,
+    dx-east  = { fed_end = "A", ohms = 900.0 }          # end A toward 65 deg
+    dx-west  = { null_bearing_deg = 65.0, ohms = 900.0,
                  bands = { "160m" = { ohms = 950.0 }, "80m" = { ohms = 780.0 } } }
     wide     = { fed_end = "A", ohms = 850.0,
                  bands = [ { freq_lo_mhz = 0.52, freq_hi_mhz = 1.0, ohms = 1100.0 },
                            { freq_lo_mhz = 1.0, freq_hi_mhz = 1.71, open = true } ] }
-    figure8  = { open = true }
+    no-null  = { open = true }
 
 Keys of one preset:
 

@@ -1,0 +1,98 @@
+"""Every line of the README's usage block runs as written against a simulated board.
+
+The lines are read from README.md itself (so a new usage line is run the day it is
+added). ``URL`` is the link a ``nullsteer sim`` started for the test prints, as the
+README says; ``./level.sh`` is a script that prints a level in dB, as the auto-null
+line expects. Lines that need hardware on this machine are named in
+:data:`HARDWARE_ONLY` and skipped; long-running commands are started and stopped.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import shlex
+import shutil
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parents[1]
+
+#: Lines that talk to hardware this machine does not have (a USB serial adaptor).
+HARDWARE_ONLY = {"nullsteer status --link serial:///dev/ttyUSB0"}
+#: Commands that run until stopped: started, checked to say what the README says, stopped.
+LONG_RUNNING = {"sim": "link: "}
+
+
+def usage_lines() -> list[str]:
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    block = text[text.index("## Usage"):]
+    block = block[block.index("```sh") + 5:]
+    block = block[:block.index("```")]
+    lines = []
+    for raw in block.splitlines():
+        line = re.sub(r"\s+#.*$", "", raw).strip()
+        if line:
+            lines.append(re.sub(r"\s+", " ", line))
+    return lines
+
+
+def _argv(line: str, url: str) -> list[str]:
+    words = shlex.split(line)
+    assert words[0] == "nullsteer"
+    return [sys.executable, "-m", "nullsteer"] + [url if w == "URL" else w for w in words[1:]]
+
+
+@pytest.fixture(scope="module")
+def workdir(tmp_path_factory):
+    """A user's folder: a copy of examples/ and a level script."""
+    work = tmp_path_factory.mktemp("readme")
+    shutil.copytree(ROOT / "examples", work / "examples")
+    script = work / "level.sh"
+    script.write_text("#!/bin/sh\necho -42.5\n")
+    script.chmod(0o755)
+    return work
+
+
+@pytest.fixture(scope="module")
+def sim_url(workdir):
+    proc = subprocess.Popen([sys.executable, "-m", "nullsteer", "sim"], cwd=workdir,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    try:
+        first = proc.stdout.readline()  # blocks until the board is up (event, not a sleep)
+        assert first.startswith(LONG_RUNNING["sim"]), first + proc.stderr.read()
+        yield first[len(LONG_RUNNING["sim"]):].strip()
+    finally:
+        proc.terminate()
+        proc.wait(timeout=30)
+
+
+def test_the_usage_block_is_found():
+    lines = usage_lines()
+    assert len(lines) >= 20 and all(line.startswith("nullsteer ") for line in lines)
+
+
+@pytest.mark.slow
+def test_every_usage_line_runs(workdir, sim_url):
+    env = {**os.environ, "MPLBACKEND": "Agg"}
+    env.pop("NULLSTEER_LINK", None)
+    ran = []
+    for line in usage_lines():
+        command = line.split()[1]
+        if line in HARDWARE_ONLY or command in LONG_RUNNING:
+            continue  # sim: the fixture above ran it and read its "link: URL"
+        proc = subprocess.run(_argv(line, sim_url), cwd=workdir, env=env, capture_output=True,
+                              text=True, timeout=300, stdin=subprocess.DEVNULL)
+        assert proc.returncode == 0, f"{line}\nexit {proc.returncode}\n{proc.stderr[-2000:]}"
+        assert "Traceback" not in proc.stderr, line
+        ran.append((line, proc.stdout))
+    by_line = dict(ran)
+    # the station's simulated board keeps its state between commands: set, then status
+    status = next(out for line, out in ran if line.startswith("nullsteer status --config"))
+    assert "mask 45" in status, status
+    assert (workdir / "azimuth.png").stat().st_size > 1000
+    assert (workdir / "out" / "report" / "index.html").exists()
+    assert len(by_line) >= len(usage_lines()) - len(HARDWARE_ONLY) - 1
