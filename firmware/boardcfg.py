@@ -16,6 +16,7 @@ LINK_KEYS = ("kind", "port", "path", "id", "baud", "tx", "rx", "de_pin")
 PORTS = ("stdio", "uart", "pty")
 BOOT_POLICIES = ("restore", "safe")
 MAX_BITS = 16
+MAX_PIN = 255  # GPIO numbers of the boards in hardware_notes are far below this
 
 
 class BoardConfig:
@@ -79,8 +80,10 @@ def _str(obj: dict, key: str, default: "str | None", where: str,
 
 def _pin(obj: dict, key: str, where: str) -> "int | str":
     value = obj.get(key)
-    if isinstance(value, bool) or not isinstance(value, (int, str)) or value == "":
-        raise BoardConfigError(where + key, "must be a pin number or name, got %r" % (value,))
+    if isinstance(value, bool) or not isinstance(value, (int, str)) or value == "" \
+            or (isinstance(value, int) and not 0 <= value <= MAX_PIN):
+        raise BoardConfigError(where + key, "must be a pin number 0..%d or a pin name, got %r"
+                               % (MAX_PIN, value))
     return value
 
 

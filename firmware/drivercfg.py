@@ -40,8 +40,9 @@ def _pin(obj: dict, key: str, where: str, required: bool) -> "int | str | None":
     value = obj.get(key)
     if value is None and not required:
         return None
-    if isinstance(value, bool) or not isinstance(value, (int, str)) or value == "":
-        raise _error(where + key, "must be a pin number or name, got %r" % (value,))
+    if isinstance(value, bool) or not isinstance(value, (int, str)) or value == "" \
+            or (isinstance(value, int) and not 0 <= value <= 255):
+        raise _error(where + key, "must be a pin number 0..255 or a pin name, got %r" % (value,))
     return value
 
 

@@ -75,10 +75,10 @@ CLOCK_SET_S = 1600000000  # a unix time below this means the board clock is not 
 REPLY_CACHE = 4
 
 
-def _opt_str(obj: dict, key: str, default: "str | None") -> "str | None":
+def _opt_str(obj: dict, key: str, default: "str | None", where: str = "mqtt.") -> "str | None":
     value = obj.get(key, default)
     if value is not None and (not isinstance(value, str) or not value):
-        raise _config_error("mqtt." + key, "must be a non-empty string")
+        raise _config_error(where + key, "must be a non-empty string")
     return value
 
 
@@ -187,7 +187,7 @@ def parse_mqtt(obj: object, bits: int = 16) -> dict:
         default = end
         if m["bearing"] is not None:
             default = "%s (null %d deg)" % (end, round(null_bearing(end, m["bearing"])))
-        m["labels"][end] = _opt_str(labels, end, default)
+        m["labels"][end] = _opt_str(labels, end, default, "mqtt.end_labels.")
     m["presets"] = parse_presets(obj.get("presets"), bits)
     wifi = obj.get("wifi")
     if wifi is not None and (not isinstance(wifi, dict) or "ssid" not in wifi):

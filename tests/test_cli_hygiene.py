@@ -210,3 +210,30 @@ def test_fuzzed_station_file_never_crashes(case, tmp_path, capsys):
     code, out, err = run_cli(READER[section] + ["--config", str(path)], capsys)
     assert code in (0, 2), f"exit {code}: {err}"
     assert_clean(code, out, err, json_out=True)
+
+
+def _board_variant(tmp_path: Path, name: str, change) -> str:
+    config = json.loads((ROOT / "examples" / "board-sim.json").read_text())
+    change(config)
+    path = tmp_path / f"{name}.json"
+    path.write_text(json.dumps(config))
+    return str(path)
+
+
+# Each row: a change to the demo board config, and the key the one-line error must name.
+BOARD_CASES = [
+    ("pin-negative", lambda c: c["relays"][0].update(pin=-1), "relays[0].pin"),
+    ("pin-huge", lambda c: c["relays"][0].update(pin=10**30), "relays[0].pin"),
+    ("mqtt-host", lambda c: c.update(mqtt={"host": 5, "id": "flag-ne"}), "mqtt.host"),
+    ("end-label", lambda c: c.update(mqtt={"host": "127.0.0.1", "id": "flag-ne",
+                                            "end_labels": {"A": 7}}), "mqtt.end_labels.A"),
+]
+
+
+@pytest.mark.parametrize("name, change, key", BOARD_CASES, ids=[c[0] for c in BOARD_CASES])
+def test_bad_board_config_is_exit_2_naming_the_key(name, change, key, tmp_path, capsys):
+    board = _board_variant(tmp_path, name, change)
+    code, out, err = run_cli(["status", "--link", f"sim://?board={board}"], capsys)
+    assert code == 2, err
+    assert f"board.{key}:" in err, err
+    assert_clean(code, out, err, json_out=False)

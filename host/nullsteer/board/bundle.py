@@ -47,6 +47,7 @@ from typing import Any
 
 from nullsteer.station.config import Station, check_unknown, get_int, get_str
 from nullsteer.board.devices import Device
+from nullsteer.sim.firmware import check_board_config
 from nullsteer.errors import ConfigError
 
 CORE_MODULES = ("hw.py", "app.py", "relays.py", "drivercfg.py", "drivers.py", "boardcfg.py",
@@ -245,36 +246,6 @@ def read_board_file(device: Device) -> dict[str, Any]:
                           "the device needs a board file (pins, roles) to bundle")
     from nullsteer.sim.board import read_board_config
     return read_board_config(device.board_config)
-
-
-def check_board_config(config: dict[str, Any]) -> None:
-    """Check a complete board config with the firmware's own readers (ConfigError)."""
-    from nullsteer.sim.firmware import parse_board_config
-    rest = {k: v for k, v in config.items() if k != "mqtt"}
-    cfg = parse_board_config(rest)
-    if "mqtt" in config:
-        mqtt_link = _firmware_module("mqtt_link")
-        boardcfg = sys.modules["boardcfg"]
-        try:
-            mqtt_link.parse_mqtt(config["mqtt"], cfg.bits)
-        except boardcfg.BoardConfigError as exc:
-            raise ConfigError(f"board.{exc.key}", exc.message) from None
-
-
-def _firmware_module(name: str) -> Any:
-    """A firmware module beyond the core, loaded under CPython (needs the core loaded)."""
-    import importlib.util
-
-    from nullsteer.sim.firmware import firmware_dir, load_firmware
-    load_firmware()
-    for dep in ("mqtt_client", name):
-        if dep not in sys.modules:
-            spec = importlib.util.spec_from_file_location(dep, firmware_dir() / f"{dep}.py")
-            assert spec is not None and spec.loader is not None
-            module = importlib.util.module_from_spec(spec)
-            sys.modules[dep] = module
-            spec.loader.exec_module(module)
-    return sys.modules[name]
 
 
 def designed_ladder_block(station: Station) -> dict[str, Any]:

@@ -22,7 +22,7 @@ from typing import Any
 from nullsteer.protocol import wire
 from nullsteer.errors import ConfigError, LinkError
 from nullsteer.sim.firmware import (discovery_source, find_micropython, firmware_dir,
-                                    parse_board_config, wire_source)
+                                    check_board_config, parse_board_config, wire_source)
 from nullsteer.sim.pinlog import RelayEvent, decode_state, final_levels, read_pin_log, relay_events
 from nullsteer.sim.ptyrelay import PtyRelay
 
@@ -68,7 +68,7 @@ class SimBoard:
     def __init__(self, board_config: dict | str | os.PathLike, state_dir: str | os.PathLike |
                  None = None, heap_bytes: int | None = None) -> None:
         self.config = read_board_config(board_config)
-        self.cfg = parse_board_config(self.config)
+        self.cfg = check_board_config(self.config)
         self.heap_bytes = int(heap_bytes or (MQTT_HEAP_BYTES if "mqtt" in self.config
                                              else DEFAULT_HEAP_BYTES))
         if self.heap_bytes < 8 * 1024:

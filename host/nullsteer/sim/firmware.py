@@ -14,6 +14,7 @@ import shutil
 import sys
 from pathlib import Path
 from types import ModuleType, SimpleNamespace
+from typing import Any
 
 from nullsteer.protocol import wire
 from nullsteer.errors import ConfigError, LinkError
@@ -80,3 +81,33 @@ def parse_board_config(obj: dict):
         return fw.boardcfg.parse_board(obj)
     except fw.boardcfg.BoardConfigError as exc:
         raise ConfigError(f"board.{exc.key}", exc.message) from None
+
+
+def check_board_config(config: dict[str, Any]) -> Any:
+    """Check a complete board config, its mqtt block too, with the firmware's own readers.
+
+    Returns the firmware's ``BoardConfig``; a bad value raises ConfigError (exit 2), so a
+    simulated board with a bad config is refused before its interpreter starts.
+    """
+    cfg = parse_board_config(config)
+    if "mqtt" in config:
+        mqtt_link = _firmware_module("mqtt_link")
+        boardcfg = sys.modules["boardcfg"]
+        try:
+            mqtt_link.parse_mqtt(config["mqtt"], cfg.bits)
+        except boardcfg.BoardConfigError as exc:
+            raise ConfigError(f"board.{exc.key}", exc.message) from None
+    return cfg
+
+
+def _firmware_module(name: str) -> Any:
+    """A firmware module beyond the core, loaded under CPython (needs the core loaded)."""
+    load_firmware()
+    for dep in ("mqtt_client", name):
+        if dep not in sys.modules:
+            spec = importlib.util.spec_from_file_location(dep, firmware_dir() / f"{dep}.py")
+            assert spec is not None and spec.loader is not None
+            module = importlib.util.module_from_spec(spec)
+            sys.modules[dep] = module
+            spec.loader.exec_module(module)
+    return sys.modules[name]
