@@ -29,12 +29,18 @@ def test_fam_follows_table1(name):
             == pytest.approx(d, abs=1e-9))
 
 
-def test_fam_outside_fit_range_is_rejected():
-    # ITU-R P.372 Table 1 fits are stated for 0.3-250 MHz
-    with pytest.raises(ConfigError):
-        external_noise_figure_db(0.1e6, "rural")
+def test_fam_outside_fit_range_is_rejected_or_marked():
+    # ITU-R P.372 Table 1 fits are stated for 0.3-250 MHz: above, refused; below (LF and
+    # low MF, down to 10 kHz) the same line c - d log10(f) is extended and the budget says so
     with pytest.raises(ConfigError):
         external_noise_figure_db(300e6, "city")
+    with pytest.raises(ConfigError):
+        external_noise_figure_db(5e3, "rural")
+    assert external_noise_figure_db(0.1e6, "rural") == pytest.approx(67.2 + 27.7, abs=1e-9)
+    chain = ReceiveChain(receiver_nf_db=12.0)
+    low = noise_budget(0.137e6, -40.0, chain, "rural")
+    assert any("extrapolated" in n and "atmospheric" in n for n in low.notes)
+    assert not any("extrapolated" in n for n in noise_budget(1.83e6, -40.0, chain, "rural").notes)
 
 
 def test_noise_power_equation_6():

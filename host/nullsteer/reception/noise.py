@@ -68,6 +68,22 @@ P372_CONSTANTS: dict[NoiseCategory, tuple[float, float]] = {
 }
 #: Frequency range of the Table 1 fits, MHz.
 P372_RANGE_MHZ = (0.3, 250.0)
+#: Below the fits' range, down to this frequency (MHz), the Table 1 line is extended and
+#: every budget says so (:func:`extrapolation_note`). From memory: P.372 describes LF and
+#: low-MF noise through atmospheric noise (lightning, §4, charts by season and time
+#: block), which there usually exceeds man-made noise; that is not modelled here, so the
+#: extended line is a floor for a quiet night, not a forecast.
+EXTRAPOLATE_DOWN_TO_MHZ = 0.01
+
+
+def extrapolation_note(freq_hz: float) -> str | None:
+    """A note when ``freq_hz`` lies below the range of ITU-R P.372 Table 1, else None."""
+    f_mhz = freq_hz / 1e6
+    if f_mhz >= P372_RANGE_MHZ[0]:
+        return None
+    return (f"below {P372_RANGE_MHZ[0]:g} MHz the man-made noise line of ITU-R P.372 Table 1 "
+            "is extrapolated; atmospheric noise (P.372 §4) usually dominates there and is "
+            "not included")
 
 
 def external_noise_figure_db(freq_hz: float, category: NoiseCategory | str) -> float:
@@ -76,16 +92,19 @@ def external_noise_figure_db(freq_hz: float, category: NoiseCategory | str) -> f
     Parameters
     ----------
     freq_hz : float
-        Frequency, hertz; must lie in 0.3..250 MHz, the range of the fit.
+        Frequency, hertz: 0.3..250 MHz, the range of the fit, or down to
+        :data:`EXTRAPOLATE_DOWN_TO_MHZ` with the line extended (see
+        :func:`extrapolation_note`).
     category : NoiseCategory or str
         Environment category.
     """
     cat = NoiseCategory.parse(category) if isinstance(category, str) else category
     f_mhz = freq_hz / 1e6
-    lo, hi = P372_RANGE_MHZ
+    lo, hi = EXTRAPOLATE_DOWN_TO_MHZ, P372_RANGE_MHZ[1]
     if not lo <= f_mhz <= hi:
         raise ConfigError("freq", f"{f_mhz:g} MHz is outside the {lo:g}..{hi:g} MHz "
-                                  "range of ITU-R P.372 Table 1")
+                                  "this noise model covers (ITU-R P.372 Table 1 is fitted "
+                                  f"for {P372_RANGE_MHZ[0]:g}..{hi:g} MHz)")
     c, d = P372_CONSTANTS[cat]
     return c - d * math.log10(f_mhz)
 
@@ -289,6 +308,9 @@ def noise_budget(freq_hz: float, avg_gain_db: float, chain: ReceiveChain,
     if need is None:
         notes.append("no preamp gain reaches the margin: the preamp's own noise figure "
                      "(or the loss ahead of it) is too high")
+    below = extrapolation_note(freq_hz)
+    if below:
+        notes.append(below)
     if cat is NoiseCategory.GALACTIC and freq_hz < 10e6:
         notes.append("galactic noise barely reaches the ground below ~10 MHz (P.372 §5)")
     return NoiseBudget(freq_hz=freq_hz, category=cat.value, bandwidth_hz=bandwidth_hz,
