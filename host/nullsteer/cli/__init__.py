@@ -34,6 +34,7 @@ COMMAND_MODULES = (
     "nullsteer.cli.plot",
     "nullsteer.cli.firmware",
     "nullsteer.cli.demo",
+    "nullsteer.cli.reference",
 )
 
 

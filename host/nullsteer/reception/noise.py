@@ -31,7 +31,7 @@ from dataclasses import dataclass, field
 from enum import Enum
 from typing import Any
 
-from nullsteer.station.config import check_unknown, get_float, get_str
+from nullsteer.station.schema import Key, Kind, Section
 from nullsteer.errors import ConfigError
 
 #: kT0 in dBW/Hz for T0 = 290 K (ITU-R P.372 eq. 6).
@@ -322,18 +322,29 @@ def noise_budget(freq_hz: float, avg_gain_db: float, chain: ReceiveChain,
 
 
 # -- station file -------------------------------------------------------------------
-NOISE_KEYS = frozenset({"category", "receiver_nf_db", "bandwidth_hz", "preamp_nf_db",
-                        "preamp_gain_db", "preamp_at", "margin_db"})
+NOISE = Section("noise", "The receiving chain and its noise surroundings, for `nullsteer noise`, "
+                "the report and the virtual receiver.", (
+    Key("category", Kind.STRING, "ITU-R P.372 environment category.", default="rural",
+        choices=tuple(c.value for c in NoiseCategory)),
+    Key("receiver_nf_db", Kind.NUMBER, "Receiver noise figure.", "dB", 12.0, 0.0, 60.0),
+    Key("bandwidth_hz", Kind.NUMBER, "Receiver bandwidth.", "Hz", 500.0, 0.0, 1e7,
+        exclusive_min=True),
+    Key("preamp_nf_db", Kind.NUMBER, "Noise figure of the preamp (fitted or planned).", "dB",
+        3.0, 0.0, 30.0),
+    Key("preamp_gain_db", Kind.NUMBER, "Gain of the preamp fitted now; 0 means none.", "dB",
+        0.0, 0.0, 60.0),
+    Key("preamp_at", Kind.STRING, "Where the preamp sits: before the coax or after it.",
+        default="antenna", choices=("antenna", "shack")),
+    Key("margin_db", Kind.NUMBER, "Wanted margin of external noise over the chain's own.",
+        "dB", DEFAULT_MARGIN_DB, 0.0, 40.0),
+))
 
 
 @dataclass(frozen=True)
 class NoiseSpec:
     """The ``[noise]`` section: environment, receiver and preamp.
 
-    Keys: ``category`` (city | residential | rural | quiet-rural | galactic),
-    ``receiver_nf_db`` (default 12), ``bandwidth_hz`` (default 500), ``preamp_nf_db``
-    (default 3), ``preamp_gain_db`` (the preamp fitted now, default 0: none),
-    ``preamp_at`` (antenna | shack, default antenna), ``margin_db`` (default 10).
+    Keys: see :data:`NOISE`.
     """
 
     category: NoiseCategory
@@ -358,18 +369,13 @@ class NoiseSpec:
 
 def parse_noise(table: dict[str, Any], where: str = "noise") -> NoiseSpec:
     """Read ``[noise]``; bad keys raise ConfigError naming ``noise.<key>``."""
-    check_unknown(table, NOISE_KEYS, where)
-    cat = NoiseCategory.parse(get_str(table, "category", where, "rural"), f"{where}.category")
-    return NoiseSpec(
-        category=cat,
-        receiver_nf_db=get_float(table, "receiver_nf_db", where, 12.0, minimum=0.0, maximum=60.0),
-        bandwidth_hz=get_float(table, "bandwidth_hz", where, 500.0, minimum=0.0,
-                               maximum=1e7, exclusive_min=True),
-        preamp_nf_db=get_float(table, "preamp_nf_db", where, 3.0, minimum=0.0, maximum=30.0),
-        preamp_gain_db=get_float(table, "preamp_gain_db", where, 0.0, minimum=0.0, maximum=60.0),
-        preamp_at=get_str(table, "preamp_at", where, "antenna", choices=("antenna", "shack")),
-        margin_db=get_float(table, "margin_db", where, DEFAULT_MARGIN_DB, minimum=0.0, maximum=40.0),
-    )
+    NOISE.check(table, where)
+    cat = NoiseCategory.parse(NOISE.get(table, "category", where, choices=None),
+                              f"{where}.category")
+    values = {k: NOISE.get(table, k, where) for k in ("receiver_nf_db", "bandwidth_hz",
+                                                      "preamp_nf_db", "preamp_gain_db",
+                                                      "preamp_at", "margin_db")}
+    return NoiseSpec(category=cat, **values)
 
 
 def station_noise_budgets(spec: NoiseSpec, freqs_hz: Sequence[float],

@@ -17,11 +17,7 @@ drawn per reading (K-factor in dB; K -> infinity is no scintillation). Readings 
 dBm referred to the antenna terminals (the chain's gain is a constant offset that does
 not move a null).
 
-Keys of ``[sim]``: ``seed`` (int, default 1), ``fading_sigma_db`` (default 2.0),
-``fading_tau_s`` (default 60), ``rician_k_db`` (default 15), ``read_noise_db`` (default
-0.2, the receiver's own reading jitter). Each ``[[sim.station]]``: ``call``, ``name``,
-``freq_mhz``, ``bearing_deg``, ``elevation_deg``, ``field_dbuv_per_m`` (dB above
-1 µV/m), optional ``fading_sigma_db`` (overrides the section's).
+Keys of ``[sim]`` and ``[[sim.station]]``: :data:`SIM` and :data:`SIM_STATION`.
 """
 
 from __future__ import annotations
@@ -34,15 +30,35 @@ from typing import Any, Protocol
 
 import numpy as np
 
-from nullsteer.station.config import Station, check_unknown, get_float, get_int, get_str
+from nullsteer.station.config import Station
+from nullsteer.station.schema import REQUIRED, Key, Kind, Section
 from nullsteer.errors import ConfigError
 from nullsteer.reception.noise import (KT0_DBW_PER_HZ, NoiseCategory, antenna_noise_kt0,
                              external_noise_figure_db)
 
-SIM_KEYS = frozenset({"seed", "fading_sigma_db", "fading_tau_s", "rician_k_db",
-                      "read_noise_db", "station"})
-STATION_KEYS = frozenset({"call", "name", "freq_mhz", "bearing_deg", "elevation_deg",
-                          "field_dbuv_per_m", "fading_sigma_db"})
+_SIGMA_DOC = "Standard deviation of the slow log-normal fade."
+SIM = Section("sim", "The virtual receiver of the simulator (demo and tests): fading of the "
+              "invented stations heard on the loop.", (
+    Key("seed", Kind.INTEGER, "Seed of the fading and reading noise.", default=1, minimum=0),
+    Key("fading_sigma_db", Kind.NUMBER, _SIGMA_DOC, "dB", 2.0, 0.0, 30.0),
+    Key("fading_tau_s", Kind.NUMBER, "Correlation time of the slow fade.", "s", 60.0, 0.0,
+        exclusive_min=True),
+    Key("rician_k_db", Kind.NUMBER, "Fast scintillation per reading: steady over scattered "
+        "power (Rician K).", "dB", 15.0, -10.0, 60.0),
+    Key("read_noise_db", Kind.NUMBER, "The receiver's own reading jitter.", "dB", 0.2, 0.0, 10.0),
+    Key("station", Kind.LIST, "The invented stations: `[[sim.station]]` entries."),
+))
+SIM_STATION = Section("sim.station", "One invented transmitter arriving as a plane wave.", (
+    Key("call", Kind.STRING, "Call sign (invented).", default=REQUIRED),
+    Key("name", Kind.STRING, "Free text.", default=""),
+    Key("freq_mhz", Kind.NUMBER, "Carrier frequency.", "MHz", REQUIRED, 0.01, 1000.0),
+    Key("bearing_deg", Kind.NUMBER, "Compass bearing it arrives from.", "deg", REQUIRED, 0.0, 360.0),
+    Key("elevation_deg", Kind.NUMBER, "Elevation it arrives at.", "deg", REQUIRED, 0.0, 90.0),
+    Key("field_dbuv_per_m", Kind.NUMBER, "Field strength at the site.", "dBµV/m", REQUIRED,
+        -60.0, 160.0),
+    Key("fading_sigma_db", Kind.NUMBER, _SIGMA_DOC + " Overrides `[sim]`'s.", "dB", None,
+        0.0, 30.0),
+), form="array")
 
 
 class AntennaResponse(Protocol):
@@ -93,32 +109,28 @@ class SimScenario:
 def parse_station_entry(t: Any, where: str) -> SimStation:
     if not isinstance(t, dict):
         raise ConfigError(where, "must be a table")
-    check_unknown(t, STATION_KEYS, where)
-    sigma = t.get("fading_sigma_db")
+    SIM_STATION.check(t, where)
+    get = SIM_STATION.get
     return SimStation(
-        call=get_str(t, "call", where), name=get_str(t, "name", where, ""),
-        freq_hz=1e6 * get_float(t, "freq_mhz", where, minimum=0.01, maximum=1000.0),
-        bearing_deg=get_float(t, "bearing_deg", where, minimum=0.0, maximum=360.0),
-        elevation_deg=get_float(t, "elevation_deg", where, minimum=0.0, maximum=90.0),
-        field_dbuv_per_m=get_float(t, "field_dbuv_per_m", where, minimum=-60.0, maximum=160.0),
-        fading_sigma_db=None if sigma is None else get_float(t, "fading_sigma_db", where,
-                                                             minimum=0.0, maximum=30.0))
+        call=get(t, "call", where), name=get(t, "name", where),
+        freq_hz=1e6 * get(t, "freq_mhz", where), bearing_deg=get(t, "bearing_deg", where),
+        elevation_deg=get(t, "elevation_deg", where),
+        field_dbuv_per_m=get(t, "field_dbuv_per_m", where),
+        fading_sigma_db=None if t.get("fading_sigma_db") is None
+        else get(t, "fading_sigma_db", where))
 
 
 def parse_scenario(station: Station) -> SimScenario:
     """Read ``[sim]`` and its ``[[sim.station]]`` entries (bad keys: ConfigError)."""
     t = station.section("sim")
-    check_unknown(t, SIM_KEYS, "sim")
+    SIM.check(t, "sim")
     entries = t.get("station", [])
     if not isinstance(entries, list):
         raise ConfigError("sim.station", "must be an array of tables ([[sim.station]])")
     stations = tuple(parse_station_entry(e, f"sim.station[{i}]") for i, e in enumerate(entries))
     return SimScenario(
-        stations=stations, seed=get_int(t, "seed", "sim", 1, minimum=0),
-        fading_sigma_db=get_float(t, "fading_sigma_db", "sim", 2.0, minimum=0.0, maximum=30.0),
-        fading_tau_s=get_float(t, "fading_tau_s", "sim", 60.0, minimum=0.0, exclusive_min=True),
-        rician_k_db=get_float(t, "rician_k_db", "sim", 15.0, minimum=-10.0, maximum=60.0),
-        read_noise_db=get_float(t, "read_noise_db", "sim", 0.2, minimum=0.0, maximum=10.0))
+        stations=stations, **{k: SIM.get(t, k, "sim") for k in (
+            "seed", "fading_sigma_db", "fading_tau_s", "rician_k_db", "read_noise_db")})
 
 
 class Fading:

@@ -32,20 +32,33 @@ from collections.abc import Iterable
 from dataclasses import dataclass
 from typing import Any
 
-from nullsteer.station.config import Station, check_unknown, get_float, get_str
+from nullsteer.station.config import Station, get_str
 from nullsteer.errors import ConfigError
 from nullsteer.station.presets import Preset, Target, parse_presets, resolve_target
-from nullsteer.station.site import Site, parse_site, read_lat_lon
+from nullsteer.station.schema import REQUIRED, Key, Kind, Section
+from nullsteer.station.site import PLACE, Site, parse_site, read_lat_lon
 from nullsteer.schedule.solar import solar_noon_minutes, utc_instant
 from nullsteer.schedule.sun import SunEvent, missing_reason, solar_day_events
 
 log = logging.getLogger(__name__)
 
 WEEKDAYS = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")
-RULE_KEYS = frozenset({"at", "offset_min", "where", "days", "preset", "device"})
-_WHERE_KEYS = frozenset({"lat_deg", "lon_deg"})
 _HHMM = re.compile(r"^([01]?\d|2[0-3]):([0-5]\d)$")
 _MAX_OFFSET_MIN = 720.0
+RULE = Section("rule", "One scheduled action: at a sun event (at the site, or at a far region "
+               "given by `where`) or a fixed site-local time, put the devices in a preset. "
+               "The rule in force now is applied when the service starts.", (
+    Key("at", Kind.STRING, "`sunrise`, `sunset`, `dawn` (civil), `dusk` (civil) or a "
+        "site-local time `HH:MM`.", default=REQUIRED),
+    Key("offset_min", Kind.NUMBER, "Minutes added to the moment (negative: before).", "min",
+        0.0, -_MAX_OFFSET_MIN, _MAX_OFFSET_MIN),
+    Key("where", Kind.TABLE, "Far region for the sun event: `{ lat_deg = ..., lon_deg = ... }` "
+        "(see `rule.where`); default the site."),
+    Key("days", Kind.LIST, "Site-local weekdays the rule acts on, e.g. `[\"sat\", \"sun\"]` "
+        f"({', '.join(WEEKDAYS)}); default every day."),
+    Key("preset", Kind.STRING, "Name of a preset of `[presets]`.", default=REQUIRED),
+    Key("device", Kind.ANY, "Device id or list of ids of `[[device]]`; default all devices."),
+), form="array")
 _UTC = dt.timezone.utc
 #: How far :func:`in_force` looks back: first a few days, then (polar sites, where sun
 #: rules may pause for months) up to a little over a year.
@@ -181,7 +194,7 @@ def _device_ids(station: Station) -> tuple[str, ...]:
 
 
 def _parse_at(table: dict[str, Any], where: str) -> tuple[SunEvent | None, dt.time | None]:
-    text = get_str(table, "at", where)
+    text = RULE.get(table, "at", where)
     if text in {e.value for e in SunEvent}:
         return SunEvent(text), None
     m = _HHMM.match(text)
@@ -217,20 +230,19 @@ def parse_rule(index: int, table: dict[str, Any], presets: dict[str, Preset],
                device_ids: tuple[str, ...]) -> Rule:
     """Parse the ``index``-th ``[[rule]]``; errors name ``rule[index].<key>``."""
     where = f"rule[{index}]"
-    check_unknown(table, RULE_KEYS, where)
+    RULE.check(table, where)
     event, clock = _parse_at(table, where)
-    offset = get_float(table, "offset_min", where, default=0.0,
-                       minimum=-_MAX_OFFSET_MIN, maximum=_MAX_OFFSET_MIN)
+    offset = RULE.get(table, "offset_min", where)
     place = None
     if "where" in table:
         if event is None:
             raise ConfigError(f"{where}.where", "only applies to sun events (at = sunrise, ...)")
         if not isinstance(table["where"], dict):
             raise ConfigError(f"{where}.where", "must be a table { lat_deg = ..., lon_deg = ... }")
-        check_unknown(table["where"], _WHERE_KEYS, f"{where}.where")
+        PLACE.check(table["where"], f"{where}.where")
         place = read_lat_lon(table["where"], f"{where}.where")
     weekdays = _parse_days(table["days"], f"{where}.days") if "days" in table else None
-    preset = get_str(table, "preset", where)
+    preset = RULE.get(table, "preset", where)
     if preset not in presets:
         defined = ", ".join(presets) if presets else "none"
         raise ConfigError(f"{where}.preset", f"unknown preset {preset!r} (defined: {defined})")

@@ -1,16 +1,7 @@
 """The listening site: ``[site]`` of the station file, and IANA time-zone lookup.
 
-Keys of ``[site]``:
-
-``lat_deg``
-    Latitude in degrees, north positive, -90..90 (required).
-``lon_deg``
-    Longitude in degrees, east positive, -180..180 (required).
-``timezone``
-    IANA zone name such as ``"Europe/Dublin"`` (default ``"UTC"``). Scheduled times
-    written as ``"HH:MM"`` are wall-clock times in this zone.
-``name``, ``callsign``
-    Free text for reports (default empty).
+The keys are described once, in :data:`SITE` (and in ``docs/station-file.md``, generated
+from it).
 """
 
 from __future__ import annotations
@@ -19,10 +10,22 @@ import zoneinfo
 from dataclasses import dataclass
 from typing import Any
 
-from nullsteer.station.config import Station, check_unknown, get_float, get_str
 from nullsteer.errors import ConfigError
+from nullsteer.station.config import Station
+from nullsteer.station.schema import REQUIRED, Key, Kind, Section
 
-SITE_KEYS = frozenset({"lat_deg", "lon_deg", "timezone", "name", "callsign"})
+_LAT = Key("lat_deg", Kind.NUMBER, "Latitude, north positive.", "deg", REQUIRED, -90.0, 90.0)
+_LON = Key("lon_deg", Kind.NUMBER, "Longitude, east positive.", "deg", REQUIRED, -180.0, 180.0)
+SITE = Section("site", "Where the antenna is. Required.", (
+    _LAT, _LON,
+    Key("timezone", Kind.STRING, "IANA zone name such as `Europe/Dublin`; rule times written "
+        "`HH:MM` are wall-clock times in this zone.", default="UTC"),
+    Key("name", Kind.STRING, "Free text for reports.", default=""),
+    Key("callsign", Kind.STRING, "Free text for reports.", default=""),
+))
+#: A place given inline, e.g. a rule's ``where = { lat_deg = ..., lon_deg = ... }``.
+PLACE = Section("rule.where", "A far region whose sun events a rule follows (greyline): "
+                "`where = { lat_deg = 40.1, lon_deg = -75.3 }`.", (_LAT, _LON), form="entry")
 
 
 @dataclass(frozen=True)
@@ -78,18 +81,15 @@ def read_lat_lon(table: dict[str, Any], where: str) -> tuple[float, float]:
     where : str
         Dotted name of the table, used in error messages (e.g. ``"rule[1].where"``).
     """
-    lat = get_float(table, "lat_deg", where, minimum=-90.0, maximum=90.0)
-    lon = get_float(table, "lon_deg", where, minimum=-180.0, maximum=180.0)
-    return lat, lon
+    return PLACE.get(table, "lat_deg", where), PLACE.get(table, "lon_deg", where)
 
 
 def parse_site(station: Station) -> Site:
     """Parse ``[site]`` (required) into a :class:`Site`; bad keys raise ConfigError."""
     table = station.section("site", required=True)
-    check_unknown(table, SITE_KEYS, "site")
+    SITE.check(table, "site")
     lat, lon = read_lat_lon(table, "site")
-    tz_name = get_str(table, "timezone", "site", default="UTC")
+    tz_name = SITE.get(table, "timezone", "site")
     get_zone(tz_name, "site.timezone")
     return Site(lat_deg=lat, lon_deg=lon, timezone=tz_name,
-                name=get_str(table, "name", "site", default=""),
-                callsign=get_str(table, "callsign", "site", default=""))
+                name=SITE.get(table, "name", "site"), callsign=SITE.get(table, "callsign", "site"))
