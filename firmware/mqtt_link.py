@@ -29,13 +29,23 @@ command must not move the antenna at every reconnect.
 
 Security: only ``T req`` carries host frames (the board subscribes to its own topics
 only). With a ``key_hex`` in the config every host frame must be signed
-(``wire.sign``: HMAC-SHA256 over the frame with ``ts``); the board refuses unsigned or
-wrongly signed frames (``ERR AUTH``) and replays (``ERR REPLAY``): a frame must be newer
-than the last accepted one (by ``ts``, then ``seq``), and, once the board clock is set,
-within ``window_s`` of it. An exact repeat of one of the last few accepted frames (a host
-retry after a lost reply) gets the cached reply again and moves nothing. Hub commands
+(``wire.sign``: HMAC-SHA256 over the frame with its counter ``ctr``); the board refuses
+unsigned or wrongly signed frames (``ERR AUTH``) and replays (``ERR REPLAY``): a frame's
+counter must be above the last accepted one. The guard needs no clock and survives
+reboots: before a frame is acted on, the board makes sure ``ns_ctr.txt`` (beside the state
+file, written atomically) holds a counter at least as high, reserving ``CTR_RESERVE`` more
+at a time so that an honest host costs one flash write per ``CTR_RESERVE`` frames; after a
+reboot the whole reservation counts as used. The ``REPLAY`` reply is signed by the board
+with its last accepted counter, so an honest host that fell behind (another host with the
+same key went ahead, or the reservation after a reboot) catches up and retries, and no
+single frame can lock honest hosts out. An exact repeat of one of the last few accepted
+frames (a QoS 1 duplicate) gets the cached reply again and moves nothing. Hub commands
 cannot be signed: they are off by default when a key is set (``"hub": true`` turns them
 on; then protect the ``T .../set`` topics with the broker's ACL).
+
+Robustness: a message larger than the client's buffer limit is discarded as it arrives
+and counted (``"dropped"`` in ``T state``); the connection stays up. Numbers from hub
+topics are read with the codec's strict decimal reader: ``nan``/``inf`` are refused.
 
 Discovery (decided: the board publishes it). The board has its ladder table, its presets
 and its state, so a home-automation hub that follows the MQTT discovery convention sees
@@ -51,7 +61,6 @@ if TYPE_CHECKING:
     from typing import Any
 
 import json
-import time
 
 import wire
 from link_serial import LineAssembler
@@ -66,12 +75,12 @@ def _config_error(key: str, message: str) -> Exception:
 
 MQTT_KEYS = ("host", "port", "user", "password", "tls", "ca_file", "server_hostname",
              "base", "id", "keepalive_s", "discovery", "discovery_prefix", "name",
-             "key_hex", "window_s", "hub", "end_labels", "end_a_bearing_deg", "presets",
-             "wifi", "backoff_s", "backoff_max_s", "log")
+             "key_hex", "hub", "end_labels", "end_a_bearing_deg", "presets",
+             "wifi", "backoff_s", "backoff_max_s", "log", "insecure")
 PRESET_KEYS = ("end", "mask", "ohms", "open")
 HUB_TOPICS = ("end", "bearing", "ohms", "open", "preset")
 CUSTOM = "custom"
-CLOCK_SET_S = 1600000000  # a unix time below this means the board clock is not set
+CTR_RESERVE = 64  # frame counters reserved in ns_ctr.txt per flash write
 REPLY_CACHE = 4
 
 
@@ -168,7 +177,6 @@ def parse_mqtt(obj: object, bits: int = 16) -> dict:
             raise _config_error("mqtt.key_hex", "must be hex digits")
         if len(m["key"]) < 16:
             raise _config_error("mqtt.key_hex", "key must be at least 16 bytes")
-    m["window_s"] = int(_num(obj, "window_s", 120, 1, 86400))
     hub = obj.get("hub", m["key"] is None)
     disc = obj.get("discovery", True)
     log = obj.get("log", False)
@@ -213,36 +221,38 @@ def end_for_bearing(wanted_deg: float, end_a_bearing_deg: float) -> str:
 
 
 class ReplayGuard:
-    """Accepts each signed frame once, in order (``ts`` then ``seq``), within a window.
+    """Accepts a signed frame only when its counter is above every one accepted before,
+    across reboots (see the module docstring).
 
     Parameters
     ----------
-    window_s : int
-        Largest accepted |ts - board time| in seconds once the board clock is set.
-    now_s : callable
-        Unix time in seconds (``time.time``).
+    store : CounterStore
+        Where the highest counter that may have been accepted is kept (store.py).
+    reserve : int
+        Counters reserved per write.
     """
 
-    def __init__(self, window_s: int, now_s: "Any") -> None:
-        self.window_s = window_s
-        self.now_s = now_s
-        self.last_ts = -1
-        self.seqs_at_last = []  # type: list[int]
+    def __init__(self, store: "Any", reserve: int = CTR_RESERVE) -> None:
+        self.store = store
+        self.reserve = reserve
+        self.last = store.load()  # after a reboot every reserved counter counts as used
+        self.ceiling = self.last
+        store.discard_tmp()
 
-    def check(self, ts: int, seq: int) -> "str | None":
-        """None if (ts, seq) may be accepted (and records it), else the reason."""
-        now = int(self.now_s())
-        if now >= CLOCK_SET_S and abs(ts - now) > self.window_s:
-            return "ts %d is %d s away from board time" % (ts, ts - now)
-        if ts < self.last_ts or (ts == self.last_ts and seq in self.seqs_at_last):
-            return "frame is not newer than the last accepted one"
-        if ts > self.last_ts:
-            self.last_ts = ts
-            self.seqs_at_last = []
-        self.seqs_at_last.append(seq)
-        if len(self.seqs_at_last) > 32:
-            self.seqs_at_last.pop(0)
+    def check(self, ctr: int) -> "str | None":
+        """None if ``ctr`` may be accepted, else the reason (one protocol word)."""
+        if ctr <= self.last:
+            return "counter_%d_not_above_%d" % (ctr, self.last)
         return None
+
+    def accept(self, ctr: int) -> None:
+        """Record ``ctr`` as accepted; its reservation is on flash before this returns
+        (raises OSError when it cannot be written: the frame must then be refused)."""
+        if ctr > self.ceiling:
+            ceiling = min(ctr + self.reserve, wire.CTR_MAX)
+            self.store.save(ceiling)
+            self.ceiling = ceiling
+        self.last = ctr
 
 
 class BoardMqtt:
@@ -258,21 +268,27 @@ class BoardMqtt:
         ``make_client(m) -> MQTTClient`` (tests inject; default :func:`make_client`).
     clock : object
         ``ticks_ms`` / ``ticks_diff`` / ``sleep_ms``.
-    now_s : callable
-        Unix time in seconds, for the replay window.
     net_up : callable or None
         Brings the network up before each connection attempt (Wi-Fi, see net.py).
+    counter : CounterStore or None
+        The replay guard's counter file (default: ``ns_ctr.txt`` beside the state file,
+        through the app's file access).
     """
 
     def __init__(self, app: "Any", m: dict, make_client: "Any", clock: "Any",
-                 now_s: "Any" = None, net_up: "Any" = None) -> None:
+                 net_up: "Any" = None, counter: "Any" = None) -> None:
         self.net_up = net_up
         self.app = app
         self.m = m
         self.make_client = make_client
         self.clock = clock
         self.t = m["base"] + "/" + m["id"] + "/"
-        self.guard = ReplayGuard(m["window_s"], now_s or time.time)
+        self.guard = None  # type: Any
+        if m["key"] is not None:
+            if counter is None:
+                from store import CounterStore, counter_path
+                counter = CounterStore(counter_path(app.store.path), app.store.fs)
+            self.guard = ReplayGuard(counter)
         self.client = None  # type: Any
         self.next_try_ms = clock.ticks_ms()
         self.backoff_ms = int(m["backoff_s"] * 1000)
@@ -453,15 +469,20 @@ class BoardMqtt:
         except wire.WireError as exc:
             return wire.encode_error(exc.seq, exc.code, exc.message)
         try:
-            ts = wire.verify(line, key)
+            ctr = wire.verify(line, key)
         except wire.WireError as exc:  # verify does not know the seq: answer with it
             return wire.encode_error(frame.seq, exc.code, exc.message)
         for cached_line, reply in self.replies:
             if cached_line == line:
-                return reply  # the host retried: same answer, nothing moves
-        why = self.guard.check(ts, frame.seq)
-        if why is not None:
-            return wire.encode_error(frame.seq, wire.E_REPLAY, why)
+                return reply  # a duplicate delivery: same answer, nothing moves
+        why = self.guard.check(ctr)
+        if why is not None:  # signed, so that the host may trust the counter and catch up
+            return wire.sign(frame.seq, "ERR", (("code", wire.E_REPLAY), ("msg", why)), key,
+                             self.guard.last)
+        try:
+            self.guard.accept(ctr)
+        except OSError:
+            return wire.encode_error(frame.seq, wire.E_HW, "cannot save the frame counter")
         reply = self.app.handle_line(line)
         self.replies.append((line, reply))
         if len(self.replies) > REPLY_CACHE:
