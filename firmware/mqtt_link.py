@@ -8,13 +8,13 @@ topic                direction payload                                          
 ``T avail``          out       ``online`` (birth) / ``offline`` (last will)      yes
 ``T req``            in        one protocol request line (as on the serial link) no
 ``T rep``            out       the reply line                                    no
-``T state``          out       JSON ``{"end","mask","open","ohms","preset"}``    yes
+``T state``          out       JSON: end mask open ohms preset boots dropped     yes
 ``T end``            out       the fed end's label (``A``/``B`` or configured)   yes
 ``T ohms``           out       the termination in ohms, ``%.1f``                 yes
 ``T open``           out       ``ON`` (termination disconnected) / ``OFF``       yes
 ``T preset``         out       the preset matching the state, or ``custom``      yes
 ``T end/set``        in        ``A``/``B`` or an end label                       no
-``T bearing/set``    in        wanted null bearing in degrees (nearest end)      no
+``T bearing/set``    in        wanted null bearing, degrees -360..360 (nearest)  no
 ``T ohms/set``       in        ohms (nearest ladder setting by ratio; closes)    no
 ``T open/set``       in        ``ON``/``OFF``                                    no
 ``T preset/set``     in        a preset name from the board config               no
@@ -296,6 +296,7 @@ class BoardMqtt:
         self.replies = []  # type: list
         self.hub_seq = 0
         self.connects = 0
+        self.dropped_before = 0  # messages dropped on earlier connections
         self.status_topic = m["discovery_prefix"] + "/status"
         self.info = {}  # type: dict
         self.table = []  # type: list
@@ -355,6 +356,7 @@ class BoardMqtt:
         except OSError as exc:
             self.log("connection lost: %s" % (exc,))
             self.client.close()
+            self.dropped_before += self.client.dropped
             self.client = None
             self.next_try_ms = self.clock.ticks_ms()
 
@@ -410,10 +412,17 @@ class BoardMqtt:
                 return name
         return CUSTOM
 
+    @property
+    def dropped(self) -> int:
+        """Oversize or malformed messages dropped since boot."""
+        c = self.client
+        return self.dropped_before + (c.dropped if c is not None else 0)
+
     def publish_state(self) -> None:
-        """Publish the relay state (retained) when it differs from what was published."""
+        """Publish the relay state (retained) when it (or the drop count) differs from
+        what was published."""
         s = self.app.bank.state
-        key = (s.end, s.mask, s.open_)
+        key = (s.end, s.mask, s.open_, self.dropped)
         if key == self.published:
             return
         f = self.ask("STATUS")
@@ -423,7 +432,7 @@ class BoardMqtt:
         end, mask, open_ = f["end"], int(f["mask"]), f["open"] == "1"
         preset = self.preset_of(end, mask, open_)
         doc = {"end": end, "mask": mask, "open": open_, "ohms": ohms, "preset": preset,
-               "boots": int(f.get("boots", "0"))}
+               "boots": int(f.get("boots", "0")), "dropped": key[3]}
         c = self.client
         c.publish(self.t + "state", json.dumps(doc), True, 1)
         if self.m["hub"]:
@@ -505,11 +514,13 @@ class BoardMqtt:
             if end is not None:
                 fields = [("end", end), ("mask", s.mask), ("open", s.open_)]
         elif name == "bearing" and self.m["bearing"] is not None:
-            try:
-                fields = [("end", end_for_bearing(float(text), self.m["bearing"])),
-                          ("mask", s.mask), ("open", s.open_)]
+            try:  # the codec's reader: finite decimals only (no nan, inf or 1_0)
+                wanted = wire.parse_decimal(text)
             except ValueError:
-                pass
+                wanted = None
+            if wanted is not None and -360.0 <= wanted <= 360.0:
+                fields = [("end", end_for_bearing(wanted, self.m["bearing"])),
+                          ("mask", s.mask), ("open", s.open_)]
         elif name == "ohms":
             fields = [("end", s.end), ("ohms", text), ("open", False)]
         elif name == "open" and text in ("ON", "OFF"):

@@ -109,6 +109,11 @@ def test_an_oversize_retained_request_is_dropped_without_reconnecting(make_broke
             assert b"offline" not in avail, f"{avail.count(b'offline')} reconnects"
             doc = json.loads(w.wait_for(T + "state", timeout_s=1.0))
             assert doc.get("dropped", 0) >= 1  # counted
+            # more oversize QoS 1 messages than mosquitto keeps in flight unacknowledged
+            # (max_inflight_messages, default 20, mosquitto.conf(5)): each must still be
+            # acknowledged (§4.3.2) or the board would hear nothing after them
+            for _ in range(30):
+                w.publish(T + "req", b"NS1 2 PING " + b"y" * 6000)
             with Controller(open_link(broker.url(DEV)), timeout_s=2.0) as c:
                 c.set_state(FedEnd.B, 4, False)  # still answering
             assert board.state() == ("B", 4, False)
