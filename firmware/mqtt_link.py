@@ -160,6 +160,15 @@ def parse_mqtt(obj: object, bits: int = 16) -> dict:
     m["port"] = int(_num(obj, "port", 8883 if tls else 1883, 1, 65535))
     for key in ("user", "password", "ca_file", "server_hostname", "key_hex", "name"):
         m[key] = _opt_str(obj, key, None)
+    insecure = obj.get("insecure", False)
+    if not isinstance(insecure, bool):
+        raise _config_error("mqtt.insecure", "must be true or false")
+    if tls and m["ca_file"] is None and not insecure:
+        raise _config_error("mqtt.ca_file", "needed with tls, so that the board checks the "
+                                            "broker (or say insecure: true)")
+    m["insecure"] = insecure
+    if m["server_hostname"] is None:
+        m["server_hostname"] = m["host"]
     m["base"] = _opt_str(obj, "base", "nullsteer")
     for part in m["base"].split("/"):
         _topic_word(part, "mqtt.base")

@@ -52,7 +52,7 @@ from urllib.parse import unquote, urlsplit, urlunsplit
 
 import paho.mqtt.client as mqtt
 
-from nullsteer.errors import ConfigError, LinkError
+from nullsteer.errors import ConfigError, LinkError, redacted
 from nullsteer.board.links import query_options
 
 log = logging.getLogger(__name__)
@@ -74,16 +74,6 @@ def _guarded(fn: Callable[..., None]) -> Callable[..., None]:
     return wrapper
 
 
-def redacted(url: str) -> str:
-    """``url`` with the password (if any) replaced by ``***``, for messages and logs."""
-    parts = urlsplit(url)
-    if parts.password is None:
-        return url
-    netloc = parts.netloc.rsplit("@", 1)[1]
-    user = parts.netloc.rsplit("@", 1)[0].split(":", 1)[0]
-    return urlunsplit(parts._replace(netloc=f"{user}:***@{netloc}"))
-
-
 def tls_failure(exc: ssl.SSLError) -> str:
     """One line on why a TLS handshake failed."""
     if isinstance(exc, ssl.SSLCertVerificationError):
@@ -93,24 +83,25 @@ def tls_failure(exc: ssl.SSLError) -> str:
 
 def parse_url(url: str) -> dict[str, Any]:
     """Split an mqtt(s) URL into connection settings; bad parts raise ConfigError."""
+    shown = redacted(url)  # what messages may show
     parts = urlsplit(url)
     options = query_options(url)
     for key in options:
         if key not in OPTIONS:
-            raise ConfigError("--link", f"unknown option {key!r} in {url!r} "
+            raise ConfigError("--link", f"unknown option {key!r} in {shown!r} "
                                         f"(known: {', '.join(sorted(OPTIONS))})")
     tls = parts.scheme == "mqtts"
     device = parts.path.strip("/")
     if not device or "/" in device or any(c in device for c in "+# "):
-        raise ConfigError("--link", f"expected mqtt://host/<device-id>, got {url!r}")
+        raise ConfigError("--link", f"expected mqtt://host/<device-id>, got {shown!r}")
     if not parts.hostname:
-        raise ConfigError("--link", f"no broker host in {url!r}")
+        raise ConfigError("--link", f"no broker host in {shown!r}")
     try:
         port = parts.port or (8883 if tls else 1883)
         keepalive = int(options.get("keepalive", "30"))
         timeout_s = float(options.get("connect_timeout", "5"))
     except ValueError as exc:
-        raise ConfigError("--link", f"bad number in {url!r}: {exc}") from None
+        raise ConfigError("--link", f"bad number in {shown!r}: {exc}") from None
     if not 5 <= keepalive <= 3600:
         raise ConfigError("--link", f"keepalive must be 5..3600 s, got {keepalive}")
     password = unquote(parts.password) if parts.password is not None else None
