@@ -86,7 +86,7 @@ class BoardInfo:
 
 def _int(fields: dict[str, str], key: str, default: int = 0) -> int:
     try:
-        return int(fields.get(key, default))
+        return wire.parse_int(fields.get(key, str(default)))
     except ValueError:
         raise LinkError(f"board sent a bad {key}={fields.get(key)!r}") from None
 
@@ -261,7 +261,10 @@ class Controller:
                     raise LinkError("board sent an empty TABLE chunk")
                 for item in chunk:
                     mask, _, ohms = item.partition(":")
-                    rows.append((int(mask), float(ohms)))
+                    try:
+                        rows.append((wire.parse_uint(mask), wire.parse_decimal(ohms)))
+                    except ValueError:
+                        raise LinkError(f"board sent a bad TABLE row {item!r}") from None
             self._table = rows
         return self._table
 

@@ -10,7 +10,9 @@ is the same over TLS (default port 8883 instead of 1883). Options:
 ``password_env``    read the password from this environment variable instead of the URL
 ``ca``              CA certificate (PEM) for mqtts (default: the system's CAs)
 ``cert``, ``key``   client certificate and key (PEM) for brokers that ask for one
-``insecure``        ``1``: do not check the broker's host name against its certificate
+``insecure``        ``1``: the host does not check the broker's host name against its
+                    certificate; a board bundled for ``mqtts://`` without ``ca`` does
+                    not check the broker at all (refused without this option)
 ``connect_timeout`` seconds to wait for the first connection (default 5)
 =================== ==================================================================
 
