@@ -177,21 +177,9 @@ class CounterStore(AtomicRecord):
 class StateStore(AtomicRecord):
     """Atomic save and checked load of the state file.
 
-    Parameters
-    ----------
-    path : str
-        State file path; ``path + ".tmp"`` is the temporary file.
-    bits : int
-        Number of ladder bits (masks beyond them are invalid).
-    has_open : bool
-        Whether the board has an open relay.
-    fs : object, optional
-        File access (default :class:`PosixFs`).
-    pause_ms : int
-        Test hook: write in 8-byte pieces and wait this long between steps, so a test can
-        cut the power in the middle of a write. 0 in service.
-    sleep_ms : callable, optional
-        Used with ``pause_ms``.
+    Parameters: ``path`` (the state file), ``fs``, ``pause_ms`` and ``sleep_ms`` as for
+    :class:`AtomicRecord`; ``bits``, the number of ladder bits (masks beyond them are
+    invalid); ``has_open``, whether the board has an open relay.
     """
 
     def __init__(self, path: str, bits: int, has_open: bool, fs: "Any" = None,

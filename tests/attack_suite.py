@@ -464,6 +464,8 @@ def mqtt_attacks(fig: Figures, rng: random.Random, n_flood: int, budget_s: float
         for i in range(min(30, n_flood)):
             attack("oversize", b"NS1 1 PING " + b"z" * rng.randrange(4100, 9000))
         attack("oversize retained", b"NS1 1 PING " + b"r" * 5000, retain=True, settle_s=1.0)
+        if board.state() != ("A", 11, False):  # after the floods settled (pin log)
+            fig.fail(f"mqtt: the floods moved relays to {board.state()}")
         offline = [p for topic, p, _ in list(spy.messages.queue) if topic == t + "avail"
                    and p == b"offline"]
         if offline:
