@@ -173,6 +173,8 @@ def test_bundle_for_mqtts_without_a_ca_is_refused_unless_insecure(tmp_path, caps
     err = capsys.readouterr().err
     assert "ca=" in err and "insecure" in err
     path.write_text(path.read_text().replace("/flag-ne", "/flag-ne?insecure=1"))
+    assert main(["firmware", "bundle", "--config", str(path), "-o", str(tmp_path / "b")]) == 0
+    assert "broker NOT checked" in capsys.readouterr().out
     b = bundle_for(path)
     assert b.board_config["mqtt"]["insecure"] is True and "ca_file" not in b.board_config["mqtt"]
 

@@ -144,3 +144,51 @@ def test_bearing_set_refuses_non_finite_numbers(make_broker):
             assert board.state() == ("B", 7, False)
         finally:
             w.close()
+
+
+def _guard_parts():
+    from nullsteer.board.bundle import _firmware_module
+    mqtt_link = _firmware_module("mqtt_link")
+    import store
+    return mqtt_link, store
+
+
+def test_the_counter_survives_a_reboot_and_costs_few_writes(tmp_path):
+    # anti-replay across restarts (RFC 4303 §3.4.3 keeps the window's right edge; a
+    # restarted receiver must not accept old numbers, from memory): after a "reboot" (a new
+    # guard from the same file) no counter up to the last accepted one is accepted again
+    mqtt_link, store = _guard_parts()
+    writes = []
+
+    class CountingStore(store.CounterStore):
+        def save(self, last):
+            writes.append(last)
+            super().save(last)
+
+    path = str(tmp_path / "ns_ctr.txt")
+    guard = mqtt_link.ReplayGuard(CountingStore(path))
+    for ctr in range(1, 201):
+        assert guard.check(ctr) is None
+        guard.accept(ctr)
+    assert guard.check(200) is not None and guard.check(17) is not None
+    assert len(writes) <= 4  # reserved ahead: not one flash write per frame
+    rebooted = mqtt_link.ReplayGuard(store.CounterStore(path))
+    for ctr in (1, 150, 200):
+        assert rebooted.check(ctr) is not None
+    assert rebooted.check(max(writes) + 1) is None
+
+
+def test_a_counter_that_cannot_be_saved_refuses_the_frame(tmp_path):
+    mqtt_link, store = _guard_parts()
+
+    class BrokenStore(store.CounterStore):
+        def save(self, last):
+            raise OSError(28, "no space left")
+
+    guard = mqtt_link.ReplayGuard(BrokenStore(str(tmp_path / "c.txt")))
+    try:
+        guard.accept(5)
+        raised = False
+    except OSError:
+        raised = True
+    assert raised and guard.check(5) is None  # not recorded as accepted either

@@ -58,6 +58,10 @@ def summary(bundle: Bundle) -> list[str]:
         m = c["mqtt"]
         link_text += f" + MQTT {m['host']}:{m['port']} as {m['id']}" + (
             ", signed frames" if m.get("key_hex") else "")
+        if m.get("tls"):
+            link_text += (", TLS: broker NOT checked (insecure)" if m.get("insecure") else
+                          f", TLS: broker checked ({m.get('ca_file')}, name "
+                          f"{m.get('server_hostname')})")
     table = c["ladder"].get("table") or []
     lines = [f"board {c['board']} (device {bundle.device_id}), firmware {bundle.firmware_version}",
              f"relays: {', '.join(f'{n} {role}' for role, n in roles.items())}; driver {kind}",
