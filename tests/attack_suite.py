@@ -22,7 +22,12 @@ Parts and what counts as a failure (the rules of firmware/PROTOCOL.md):
 ``cuts``     power cuts at every step of the state and counter writes (file access that
              dies at step k): a reboot that finds neither the old nor the new state, or a
              frame counter below one already accepted, is a failure.
-``mqtt``     the real firmware under MicroPython with a signing key, behind a real
+``mqtt``     the board's MQTT packet reader (firmware/mqtt_client.py under CPython) fed
+             broker streams cut into random pieces, with oversize and malformed PUBLISH
+             packets: a missing PUBACK for a QoS 1 PUBLISH (MQTT 3.1.1 §4.3.2), a message
+             delivered that should not be or the reverse, a buffer beyond the limit, or an
+             exception, is a failure. Then the real firmware under MicroPython with a
+             signing key, behind a real
              mosquitto: unsigned, wrongly signed, replayed (live and after a reboot),
              bit-flipped, garbage and oversize frames, non-finite hub commands and a frame
              counter far ahead: any relay move (pin log), broker reconnect of the board,
@@ -61,7 +66,9 @@ class Figures:
     commands: int = 0  # soak commands
     faults: int = 0  # faults injected in the soak
     cuts: int = 0  # power cuts
-    attacks: int = 0  # MQTT attacks
+    attacks: int = 0  # MQTT attacks on the running board
+    streams: int = 0  # broker streams fed to the board's MQTT packet reader
+    packets: int = 0  # PUBLISH packets in them
     failures: list[str] = field(default_factory=list)
     seconds: dict[str, float] = field(default_factory=dict)
 
@@ -393,6 +400,101 @@ def cuts(fig: Figures, rng: random.Random, n: int, budget_s: float) -> None:
 
 
 # --- MQTT -------------------------------------------------------------------------------
+def _mqtt_client_module() -> Any:
+    from nullsteer.board.bundle import _firmware_module
+    _firmware_module("mqtt_link")
+    return sys.modules["mqtt_client"]
+
+
+def mqtt_reader(fig: Figures, rng: random.Random, n: int, budget_s: float) -> None:
+    """The board's MQTT packet reader fed a broker stream cut into random pieces:
+    valid, oversize and malformed PUBLISH packets among others. Every QoS 1 PUBLISH must
+    get its PUBACK (MQTT 3.1.1 §4.3.2), only whole messages up to the limit reach the
+    handler, and the buffer never holds much more than the limit."""
+    mc = _mqtt_client_module()
+
+    class Sock:
+        def __init__(self) -> None:
+            self.out = bytearray()
+
+        def send(self, data: Any) -> int:
+            self.out += bytes(data)
+            return len(data)
+
+    t_end = time.monotonic() + budget_s
+    done = 0
+    while done < n and time.monotonic() < t_end:
+        c = mc.MQTTClient("fuzz", "127.0.0.1")
+        c.sock = Sock()
+        got: list[tuple[str, bytes]] = []
+        c.on_message = lambda topic, payload, retained: got.append((topic, payload))
+        stream, want_msgs, want_acks, bad = bytearray(), [], [], 0
+        for _ in range(rng.randrange(5, 40)):
+            kind = rng.randrange(10)
+            topic = "nullsteer/fd/" + "t" * rng.randrange(1, 30)
+            size = rng.choice([0, 1, 60, 500, 4000, 4090, 4200, 9000, 20000])
+            payload = bytes(rng.randrange(256) for _ in range(min(size, 64))) * \
+                (size // 64 + 1)
+            payload = payload[:size]
+            qos = rng.randrange(2)
+            pid = rng.randrange(1, 65536)
+            if kind < 6:
+                pkt = mc.publish_packet(topic, payload, False, qos, pid)
+                oversize = mc.decode_length(pkt, 1)[0] > mc.MAX_PACKET
+                if qos:
+                    want_acks.append(pid)
+                if not oversize:
+                    want_msgs.append((topic, payload))
+                else:
+                    bad += 1
+            elif kind == 6:  # topic length beyond the body: malformed, nothing to answer
+                pkt = mc.packet(mc.PUBLISH | 2, b"\xff\xf0abc")
+                bad += 1
+            elif kind == 7:  # topic not UTF-8 (§1.5.3): dropped, still acknowledged
+                tb = b"ns/\xff\xfe"
+                pkt = mc.packet(mc.PUBLISH | 2, bytes((0, len(tb))) + tb +
+                                bytes((pid >> 8, pid & 255)) + b"x")
+                want_acks.append(pid)
+                bad += 1
+            elif kind == 8:
+                pkt = mc.packet(mc.PINGRESP, b"")
+            else:
+                pkt = mc.packet(mc.SUBACK, bytes((0, 1, 1)))
+            stream += pkt
+        i = 0
+        while i < len(stream):
+            step = rng.randrange(1, 1025)
+            c.buf.extend(stream[i:i + step])
+            i += step
+            try:
+                pkt = c._take()
+                while pkt is not None:
+                    c._dispatch(pkt[0], pkt[1])
+                    pkt = c._take()
+            except Exception as exc:  # noqa: BLE001 - nothing here may end the connection
+                fig.fail(f"mqtt reader: {type(exc).__name__} {exc}")
+                break
+            if len(c.buf) > mc.MAX_PACKET + 5 + 1024:
+                fig.fail(f"mqtt reader: buffer grew to {len(c.buf)} bytes")
+        acks = []
+        out = bytes(c.sock.out)
+        while out:
+            if out[0] != mc.PUBACK or out[1] != 2:
+                fig.fail(f"mqtt reader: unexpected packet {out[:4]!r} sent")
+                break
+            acks.append((out[2] << 8) | out[3])
+            out = out[4:]
+        if acks != want_acks:
+            fig.fail(f"mqtt reader: PUBACKs {acks[:5]}... != {want_acks[:5]}...")
+        if got != want_msgs:
+            fig.fail(f"mqtt reader: {len(got)} messages delivered, {len(want_msgs)} expected")
+        if c.dropped != bad:
+            fig.fail(f"mqtt reader: dropped {c.dropped}, expected {bad}")
+        fig.streams += 1
+        fig.packets += len(want_acks) + len(want_msgs)
+        done += 1
+
+
 def mqtt_attacks(fig: Figures, rng: random.Random, n_flood: int, budget_s: float) -> None:
     from conftest import Broker
     from mqtt_support import MqttSimBoard, Watcher
@@ -501,6 +603,7 @@ SCALES = {  # part -> (full, smoke)
     "soak": (10000, 400),
     "cuts": (1400, 100),
     "flood": (1000, 0),
+    "reader": (2000, 100),
 }
 
 
@@ -514,6 +617,7 @@ def run(smoke: bool = False, seed: int = 1, budget_s: float = 240.0,
               if scale["fuzz_mpy"] else None),
              ("soak", lambda: soak(fig, rng, scale["soak"], budget_s)),
              ("cuts", lambda: cuts(fig, rng, scale["cuts"], budget_s)),
+             ("mqtt", lambda: mqtt_reader(fig, rng, scale["reader"], budget_s)),
              ("mqtt", lambda: mqtt_attacks(fig, rng, scale["flood"], budget_s)
               if not smoke else None)]
     for name, step in steps:
@@ -539,7 +643,8 @@ def main(argv: list[str] | None = None) -> int:
         print(f"  fuzzed frames answered   {fig.frames}")
         print(f"  soak commands            {fig.commands} ({fig.faults} faults injected)")
         print(f"  power cuts               {fig.cuts}")
-        print(f"  MQTT attacks             {fig.attacks}")
+        print(f"  MQTT attacks             {fig.attacks} on the board, {fig.streams} broker "
+              f"streams ({fig.packets} PUBLISH) into its packet reader")
         print(f"  failures                 {len(fig.failures)}")
         print(f"  seconds                  {fig.seconds}")
         for f in fig.failures:

@@ -30,3 +30,4 @@ def test_smoke_run_has_no_failures():
     assert fig.failures == []
     assert fig.frames >= 2000 and fig.commands >= 300 and fig.cuts >= 100
     assert fig.faults > 10  # the soak did inject faults
+    assert fig.streams >= 100 and fig.packets > 1000  # the MQTT packet reader was fed
