@@ -7,7 +7,7 @@ STUBS  := .stubs
 STUBS_STAMP := $(STUBS)/.installed-stamp
 DEMO_OUT ?= out/demo
 
-.PHONY: all venv broker stubs typecheck test demo bench clean
+.PHONY: all venv broker stubs typecheck test demo bench attack clean
 
 all: test
 
@@ -45,6 +45,11 @@ test: venv broker typecheck
 
 demo: venv
 	$(BIN)/nullsteer demo --config examples/station.toml --out $(DEMO_OUT)
+
+# The attack run: seeded, bounded fuzz, fault soak, power cuts and MQTT attacks on the real
+# firmware and a real broker (127.0.0.1 only); prints its figures. A smoke part runs in test.
+attack: venv broker
+	$(BIN)/python tests/attack_suite.py --seed $${SEED:-1}
 
 bench: venv
 	@for b in benchmarks/bench_*.py; do echo "== $$b"; $(BIN)/python $$b || exit 1; done

@@ -124,8 +124,11 @@ class App:
             table = self.ohms
             if not len(table):
                 raise wire.WireError(wire.E_STATE, "no ladder table: use mask", seq)
-            ohms = wire.field_float(f, "ohms", table[0] / OHMS_SPAN,
-                                    table[-1] * OHMS_SPAN, seq)
+            # the span counts from the rows as the protocol writes them (one decimal):
+            # a table kept as 32-bit floats holds 1944.7 as 1944.69995..., and twice the
+            # row as written (3889.4) must still be accepted
+            ohms = wire.field_float(f, "ohms", float(wire.format_ohms(table[0])) / OHMS_SPAN,
+                                    float(wire.format_ohms(table[-1])) * OHMS_SPAN, seq)
             mask = self.masks[wire.nearest_index(table, ohms)]
         else:
             mask = wire.field_int(f, "mask", 0, (1 << self.bank.bits) - 1, seq)

@@ -41,6 +41,12 @@ Design notes
   the caller's reconnect loop treats it like any other failed connection. A TLS socket
   that holds decrypted bytes not yet read shows as readable to ``select.poll`` on
   MicroPython; on CPython :meth:`MQTTClient._fill` asks ``pending()``.
+* Bounded memory: a packet longer than :data:`MAX_PACKET` is never buffered. Its bytes
+  are thrown away as they arrive (a QoS 1 PUBLISH still gets its PUBACK, so the broker's
+  in-flight window does not fill up) and :attr:`MQTTClient.dropped` counts it; a PUBLISH
+  whose topic or length fields do not add up, or that the handler cannot take, is
+  dropped and counted the same way. The connection stays up: only a broken stream (a
+  remaining length of more than four bytes, §2.2.3) ends it.
 * Errors: every failure of the connection raises ``OSError``; a refused CONNECT raises
   :class:`MQTTError` (a subclass) with the CONNACK return code (§3.2.2.3).
 """
@@ -66,7 +72,7 @@ PINGREQ = 0xC0
 PINGRESP = 0xD0
 DISCONNECT = 0xE0
 
-MAX_PACKET = 4096  # largest packet the board accepts; bigger ones end the connection
+MAX_PACKET = 4096  # largest packet the board keeps; bigger ones are discarded and counted
 
 #: CONNACK return codes, MQTT 3.1.1 §3.2.2.3
 CONNACK_TEXT = {
@@ -245,6 +251,8 @@ class MQTTClient:
         self.last_rx_ms = 0
         self.ping_out_ms = -1
         self.connected = False
+        self.dropped = 0  # oversize or malformed messages thrown away
+        self.skip = None  # type: Any  # the oversize packet being discarded (see _discard)
 
     # --- set-up ----------------------------------------------------------------------
     def set_will(self, topic: str, payload: bytes, retain: bool = False, qos: int = 0) -> None:
@@ -267,6 +275,7 @@ class MQTTClient:
             self.poller = select.poll()
             self.poller.register(sock, select.POLLIN)
             self.buf = bytearray()
+            self.skip = None
             self.unacked = {}
             self._send(connect_packet(self.client_id, self.keepalive_s, clean,
                                       self.user, self.password, self.will))
@@ -387,13 +396,23 @@ class MQTTClient:
 
     def _take(self) -> "tuple | None":
         """The next whole packet from the buffer as (first byte, body), or None."""
+        if self.skip is not None and not self._discard():
+            return None
         if len(self.buf) < 2:
             return None
         length, used = decode_length(self.buf, 1)
         if length < 0:
             return None
         if length > MAX_PACKET:
-            raise OSError("packet of %d bytes is too big" % length)
+            # too big to keep: discard its body as it arrives, remembering only what a
+            # QoS 1 PUBLISH needs for its PUBACK: [kind, bytes left, position, topic
+            # length, packet id bytes]
+            self.dropped += 1
+            self.skip = [self.buf[0], length, 0, -1, bytearray()]
+            self.buf = self.buf[1 + used:]
+            if not self._discard():
+                return None
+            return self._take()
         end = 1 + used + length
         if len(self.buf) < end:
             return None
@@ -402,19 +421,59 @@ class MQTTClient:
         self.buf = self.buf[end:]
         return kind, body
 
+    def _discard(self) -> bool:
+        """Throw away buffered bytes of the oversize packet; True once it is all gone."""
+        kind, left, pos, tlen, pid = self.skip
+        qos = (kind >> 1) & 3 if kind & 0xF0 == PUBLISH else 0
+        buf = self.buf
+        i = 0
+        while left and i < len(buf):
+            if pos < 2:  # topic length, MSB first (§3.3.2.1)
+                tlen = tlen * 256 + buf[i] if pos else buf[i]
+                n = 1
+            elif qos and 2 + tlen <= pos < 4 + tlen:
+                pid.append(buf[i])
+                n = 1
+            else:
+                stop = 2 + tlen if qos and pos < 2 + tlen else pos + left
+                n = min(len(buf) - i, left, stop - pos)
+            i += n
+            pos += n
+            left -= n
+        self.buf = buf[i:]
+        if left:
+            self.skip = [kind, left, pos, tlen, pid]
+            return False
+        self.skip = None
+        if qos and len(pid) == 2:
+            self._send(packet(PUBACK, bytes(pid)))
+        return True
+
     def _dispatch(self, kind: int, body: bytes) -> None:
         ptype = kind & 0xF0
         if ptype == PUBLISH:
             qos = (kind >> 1) & 3
-            tlen = (body[0] << 8) | body[1]
-            topic = body[2:2 + tlen].decode()
+            tlen = (body[0] << 8) | body[1] if len(body) >= 2 else len(body)
             at = 2 + tlen
+            if at + (2 if qos else 0) > len(body):
+                self.dropped += 1  # the lengths do not add up: nothing to answer
+                return
             if qos:
                 pid = body[at:at + 2]
                 at += 2
                 self._send(packet(PUBACK, pid))
+            try:
+                topic = body[2:2 + tlen].decode()
+            except UnicodeError:  # §1.5.3: topics are UTF-8
+                self.dropped += 1
+                return
             if self.on_message is not None:
-                self.on_message(topic, body[at:], bool(kind & 1))
+                try:
+                    self.on_message(topic, body[at:], bool(kind & 1))
+                except OSError:
+                    raise  # the connection itself failed (e.g. while replying)
+                except Exception:  # a message the handler cannot take: drop it, go on
+                    self.dropped += 1
         elif ptype == PUBACK and len(body) == 2:
             self.unacked.pop((body[0] << 8) | body[1], None)
         elif ptype == SUBACK and len(body) >= 3:

@@ -8,13 +8,13 @@ topic                direction payload                                          
 ``T avail``          out       ``online`` (birth) / ``offline`` (last will)      yes
 ``T req``            in        one protocol request line (as on the serial link) no
 ``T rep``            out       the reply line                                    no
-``T state``          out       JSON ``{"end","mask","open","ohms","preset"}``    yes
+``T state``          out       JSON: end mask open ohms preset boots dropped     yes
 ``T end``            out       the fed end's label (``A``/``B`` or configured)   yes
 ``T ohms``           out       the termination in ohms, ``%.1f``                 yes
 ``T open``           out       ``ON`` (termination disconnected) / ``OFF``       yes
 ``T preset``         out       the preset matching the state, or ``custom``      yes
 ``T end/set``        in        ``A``/``B`` or an end label                       no
-``T bearing/set``    in        wanted null bearing in degrees (nearest end)      no
+``T bearing/set``    in        wanted null bearing, degrees -360..360 (nearest)  no
 ``T ohms/set``       in        ohms (nearest ladder setting by ratio; closes)    no
 ``T open/set``       in        ``ON``/``OFF``                                    no
 ``T preset/set``     in        a preset name from the board config               no
@@ -29,13 +29,23 @@ command must not move the antenna at every reconnect.
 
 Security: only ``T req`` carries host frames (the board subscribes to its own topics
 only). With a ``key_hex`` in the config every host frame must be signed
-(``wire.sign``: HMAC-SHA256 over the frame with ``ts``); the board refuses unsigned or
-wrongly signed frames (``ERR AUTH``) and replays (``ERR REPLAY``): a frame must be newer
-than the last accepted one (by ``ts``, then ``seq``), and, once the board clock is set,
-within ``window_s`` of it. An exact repeat of one of the last few accepted frames (a host
-retry after a lost reply) gets the cached reply again and moves nothing. Hub commands
+(``wire.sign``: HMAC-SHA256 over the frame with its counter ``ctr``); the board refuses
+unsigned or wrongly signed frames (``ERR AUTH``) and replays (``ERR REPLAY``): a frame's
+counter must be above the last accepted one. The guard needs no clock and survives
+reboots: before a frame is acted on, the board makes sure ``ns_ctr.txt`` (beside the state
+file, written atomically) holds a counter at least as high, reserving ``CTR_RESERVE`` more
+at a time so that an honest host costs one flash write per ``CTR_RESERVE`` frames; after a
+reboot the whole reservation counts as used. The ``REPLAY`` reply is signed by the board
+with its last accepted counter, so an honest host that fell behind (another host with the
+same key went ahead, or the reservation after a reboot) catches up and retries, and no
+single frame can lock honest hosts out. An exact repeat of one of the last few accepted
+frames (a QoS 1 duplicate) gets the cached reply again and moves nothing. Hub commands
 cannot be signed: they are off by default when a key is set (``"hub": true`` turns them
 on; then protect the ``T .../set`` topics with the broker's ACL).
+
+Robustness: a message larger than the client's buffer limit is discarded as it arrives
+and counted (``"dropped"`` in ``T state``); the connection stays up. Numbers from hub
+topics are read with the codec's strict decimal reader: ``nan``/``inf`` are refused.
 
 Discovery (decided: the board publishes it). The board has its ladder table, its presets
 and its state, so a home-automation hub that follows the MQTT discovery convention sees
@@ -51,7 +61,6 @@ if TYPE_CHECKING:
     from typing import Any
 
 import json
-import time
 
 import wire
 from link_serial import LineAssembler
@@ -66,12 +75,12 @@ def _config_error(key: str, message: str) -> Exception:
 
 MQTT_KEYS = ("host", "port", "user", "password", "tls", "ca_file", "server_hostname",
              "base", "id", "keepalive_s", "discovery", "discovery_prefix", "name",
-             "key_hex", "window_s", "hub", "end_labels", "end_a_bearing_deg", "presets",
-             "wifi", "backoff_s", "backoff_max_s", "log")
+             "key_hex", "hub", "end_labels", "end_a_bearing_deg", "presets",
+             "wifi", "backoff_s", "backoff_max_s", "log", "insecure")
 PRESET_KEYS = ("end", "mask", "ohms", "open")
 HUB_TOPICS = ("end", "bearing", "ohms", "open", "preset")
 CUSTOM = "custom"
-CLOCK_SET_S = 1600000000  # a unix time below this means the board clock is not set
+CTR_RESERVE = 64  # frame counters reserved in ns_ctr.txt per flash write
 REPLY_CACHE = 4
 
 
@@ -151,6 +160,15 @@ def parse_mqtt(obj: object, bits: int = 16) -> dict:
     m["port"] = int(_num(obj, "port", 8883 if tls else 1883, 1, 65535))
     for key in ("user", "password", "ca_file", "server_hostname", "key_hex", "name"):
         m[key] = _opt_str(obj, key, None)
+    insecure = obj.get("insecure", False)
+    if not isinstance(insecure, bool):
+        raise _config_error("mqtt.insecure", "must be true or false")
+    if tls and m["ca_file"] is None and not insecure:
+        raise _config_error("mqtt.ca_file", "needed with tls, so that the board checks the "
+                                            "broker (or say insecure: true)")
+    m["insecure"] = insecure
+    if m["server_hostname"] is None:
+        m["server_hostname"] = m["host"]
     m["base"] = _opt_str(obj, "base", "nullsteer")
     for part in m["base"].split("/"):
         _topic_word(part, "mqtt.base")
@@ -168,7 +186,6 @@ def parse_mqtt(obj: object, bits: int = 16) -> dict:
             raise _config_error("mqtt.key_hex", "must be hex digits")
         if len(m["key"]) < 16:
             raise _config_error("mqtt.key_hex", "key must be at least 16 bytes")
-    m["window_s"] = int(_num(obj, "window_s", 120, 1, 86400))
     hub = obj.get("hub", m["key"] is None)
     disc = obj.get("discovery", True)
     log = obj.get("log", False)
@@ -213,36 +230,38 @@ def end_for_bearing(wanted_deg: float, end_a_bearing_deg: float) -> str:
 
 
 class ReplayGuard:
-    """Accepts each signed frame once, in order (``ts`` then ``seq``), within a window.
+    """Accepts a signed frame only when its counter is above every one accepted before,
+    across reboots (see the module docstring).
 
     Parameters
     ----------
-    window_s : int
-        Largest accepted |ts - board time| in seconds once the board clock is set.
-    now_s : callable
-        Unix time in seconds (``time.time``).
+    store : CounterStore
+        Where the highest counter that may have been accepted is kept (store.py).
+    reserve : int
+        Counters reserved per write.
     """
 
-    def __init__(self, window_s: int, now_s: "Any") -> None:
-        self.window_s = window_s
-        self.now_s = now_s
-        self.last_ts = -1
-        self.seqs_at_last = []  # type: list[int]
+    def __init__(self, store: "Any", reserve: int = CTR_RESERVE) -> None:
+        self.store = store
+        self.reserve = reserve
+        self.last = store.load()  # after a reboot every reserved counter counts as used
+        self.ceiling = self.last
+        store.discard_tmp()
 
-    def check(self, ts: int, seq: int) -> "str | None":
-        """None if (ts, seq) may be accepted (and records it), else the reason."""
-        now = int(self.now_s())
-        if now >= CLOCK_SET_S and abs(ts - now) > self.window_s:
-            return "ts %d is %d s away from board time" % (ts, ts - now)
-        if ts < self.last_ts or (ts == self.last_ts and seq in self.seqs_at_last):
-            return "frame is not newer than the last accepted one"
-        if ts > self.last_ts:
-            self.last_ts = ts
-            self.seqs_at_last = []
-        self.seqs_at_last.append(seq)
-        if len(self.seqs_at_last) > 32:
-            self.seqs_at_last.pop(0)
+    def check(self, ctr: int) -> "str | None":
+        """None if ``ctr`` may be accepted, else the reason (one protocol word)."""
+        if ctr <= self.last:
+            return "counter_%d_not_above_%d" % (ctr, self.last)
         return None
+
+    def accept(self, ctr: int) -> None:
+        """Record ``ctr`` as accepted; its reservation is on flash before this returns
+        (raises OSError when it cannot be written: the frame must then be refused)."""
+        if ctr > self.ceiling:
+            ceiling = min(ctr + self.reserve, wire.CTR_MAX)
+            self.store.save(ceiling)
+            self.ceiling = ceiling
+        self.last = ctr
 
 
 class BoardMqtt:
@@ -258,21 +277,27 @@ class BoardMqtt:
         ``make_client(m) -> MQTTClient`` (tests inject; default :func:`make_client`).
     clock : object
         ``ticks_ms`` / ``ticks_diff`` / ``sleep_ms``.
-    now_s : callable
-        Unix time in seconds, for the replay window.
     net_up : callable or None
         Brings the network up before each connection attempt (Wi-Fi, see net.py).
+    counter : CounterStore or None
+        The replay guard's counter file (default: ``ns_ctr.txt`` beside the state file,
+        through the app's file access).
     """
 
     def __init__(self, app: "Any", m: dict, make_client: "Any", clock: "Any",
-                 now_s: "Any" = None, net_up: "Any" = None) -> None:
+                 net_up: "Any" = None, counter: "Any" = None) -> None:
         self.net_up = net_up
         self.app = app
         self.m = m
         self.make_client = make_client
         self.clock = clock
         self.t = m["base"] + "/" + m["id"] + "/"
-        self.guard = ReplayGuard(m["window_s"], now_s or time.time)
+        self.guard = None  # type: Any
+        if m["key"] is not None:
+            if counter is None:
+                from store import CounterStore, counter_path
+                counter = CounterStore(counter_path(app.store.path), app.store.fs)
+            self.guard = ReplayGuard(counter)
         self.client = None  # type: Any
         self.next_try_ms = clock.ticks_ms()
         self.backoff_ms = int(m["backoff_s"] * 1000)
@@ -280,6 +305,7 @@ class BoardMqtt:
         self.replies = []  # type: list
         self.hub_seq = 0
         self.connects = 0
+        self.dropped_before = 0  # messages dropped on earlier connections
         self.status_topic = m["discovery_prefix"] + "/status"
         self.info = {}  # type: dict
         self.table = []  # type: list
@@ -339,6 +365,7 @@ class BoardMqtt:
         except OSError as exc:
             self.log("connection lost: %s" % (exc,))
             self.client.close()
+            self.dropped_before += self.client.dropped
             self.client = None
             self.next_try_ms = self.clock.ticks_ms()
 
@@ -394,10 +421,17 @@ class BoardMqtt:
                 return name
         return CUSTOM
 
+    @property
+    def dropped(self) -> int:
+        """Oversize or malformed messages dropped since boot."""
+        c = self.client
+        return self.dropped_before + (c.dropped if c is not None else 0)
+
     def publish_state(self) -> None:
-        """Publish the relay state (retained) when it differs from what was published."""
+        """Publish the relay state (retained) when it (or the drop count) differs from
+        what was published."""
         s = self.app.bank.state
-        key = (s.end, s.mask, s.open_)
+        key = (s.end, s.mask, s.open_, self.dropped)
         if key == self.published:
             return
         f = self.ask("STATUS")
@@ -407,7 +441,7 @@ class BoardMqtt:
         end, mask, open_ = f["end"], int(f["mask"]), f["open"] == "1"
         preset = self.preset_of(end, mask, open_)
         doc = {"end": end, "mask": mask, "open": open_, "ohms": ohms, "preset": preset,
-               "boots": int(f.get("boots", "0"))}
+               "boots": int(f.get("boots", "0")), "dropped": key[3]}
         c = self.client
         c.publish(self.t + "state", json.dumps(doc), True, 1)
         if self.m["hub"]:
@@ -453,15 +487,20 @@ class BoardMqtt:
         except wire.WireError as exc:
             return wire.encode_error(exc.seq, exc.code, exc.message)
         try:
-            ts = wire.verify(line, key)
+            ctr = wire.verify(line, key)
         except wire.WireError as exc:  # verify does not know the seq: answer with it
             return wire.encode_error(frame.seq, exc.code, exc.message)
         for cached_line, reply in self.replies:
             if cached_line == line:
-                return reply  # the host retried: same answer, nothing moves
-        why = self.guard.check(ts, frame.seq)
-        if why is not None:
-            return wire.encode_error(frame.seq, wire.E_REPLAY, why)
+                return reply  # a duplicate delivery: same answer, nothing moves
+        why = self.guard.check(ctr)
+        if why is not None:  # signed, so that the host may trust the counter and catch up
+            return wire.sign(frame.seq, "ERR", (("code", wire.E_REPLAY), ("msg", why)), key,
+                             self.guard.last)
+        try:
+            self.guard.accept(ctr)
+        except OSError:
+            return wire.encode_error(frame.seq, wire.E_HW, "cannot save the frame counter")
         reply = self.app.handle_line(line)
         self.replies.append((line, reply))
         if len(self.replies) > REPLY_CACHE:
@@ -484,11 +523,13 @@ class BoardMqtt:
             if end is not None:
                 fields = [("end", end), ("mask", s.mask), ("open", s.open_)]
         elif name == "bearing" and self.m["bearing"] is not None:
-            try:
-                fields = [("end", end_for_bearing(float(text), self.m["bearing"])),
-                          ("mask", s.mask), ("open", s.open_)]
+            try:  # the codec's reader: finite decimals only (no nan, inf or 1_0)
+                wanted = wire.parse_decimal(text)
             except ValueError:
-                pass
+                wanted = None
+            if wanted is not None and -360.0 <= wanted <= 360.0:
+                fields = [("end", end_for_bearing(wanted, self.m["bearing"])),
+                          ("mask", s.mask), ("open", s.open_)]
         elif name == "ohms":
             fields = [("end", s.end), ("ohms", text), ("open", False)]
         elif name == "open" and text in ("ON", "OFF"):

@@ -3,8 +3,8 @@
 The unix port has no ``network`` module (its sockets use the host's network), so
 :func:`joiner` returns a function that does nothing there; on a board with Wi-Fi it
 returns one that joins the configured network, waits (feeding the watchdog) and, once
-up, sets the clock by NTP when ``ntptime`` is present (the replay window of signed
-frames needs the board's clock; without it the board still orders frames by ``ts``).
+up, sets the clock by NTP when ``ntptime`` is present (for the board's own use: the
+replay guard of signed frames counts frames and needs no clock).
 """
 
 try:

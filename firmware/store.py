@@ -10,6 +10,10 @@ accepts.
 
 File access goes through a small ``fs`` object (``open``, ``rename``, ``remove``,
 ``sync``) so tests can cut the power at any step.
+
+The frame counter of signed MQTT frames (:class:`CounterStore`, ``ns_ctr.txt`` beside the
+state file: ``NS1 0 EVT kind=ctr last=<n> *CRC``) is written the same way, so a replay
+guard survives a power cut and a reboot.
 """
 
 try:
@@ -66,17 +70,13 @@ def decode_state(data: bytes, bits: int, has_open: bool) -> "tuple[State, int]":
     return State(end, mask, open_), boots
 
 
-class StateStore:
-    """Atomic save and checked load of the state file.
+class AtomicRecord:
+    """One protocol line in a file, written atomically and read back checked.
 
     Parameters
     ----------
     path : str
-        State file path; ``path + ".tmp"`` is the temporary file.
-    bits : int
-        Number of ladder bits (masks beyond them are invalid).
-    has_open : bool
-        Whether the board has an open relay.
+        File path; ``path + ".tmp"`` is the temporary file.
     fs : object, optional
         File access (default :class:`PosixFs`).
     pause_ms : int
@@ -86,12 +86,10 @@ class StateStore:
         Used with ``pause_ms``.
     """
 
-    def __init__(self, path: str, bits: int, has_open: bool, fs: "Any" = None,
-                 pause_ms: int = 0, sleep_ms: "Any" = None) -> None:
+    def __init__(self, path: str, fs: "Any" = None, pause_ms: int = 0,
+                 sleep_ms: "Any" = None) -> None:
         self.path = path
         self.tmp = path + ".tmp"
-        self.bits = bits
-        self.has_open = has_open
         self.fs = fs if fs is not None else PosixFs()
         self.pause_ms = pause_ms
         self.sleep_ms = sleep_ms
@@ -100,37 +98,36 @@ class StateStore:
         if self.pause_ms and self.sleep_ms is not None:
             self.sleep_ms(self.pause_ms)
 
-    def _read(self, path: str) -> "tuple[State, int] | None":
+    def _decode(self, data: bytes) -> "Any":
+        raise NotImplementedError
+
+    def _read(self, path: str) -> "Any":
         try:
             f = self.fs.open(path, "rb")
             try:
                 data = f.read(wire.MAX_LINE + 1)
             finally:
                 f.close()
-            return decode_state(data, self.bits, self.has_open)
+            return self._decode(data)
         except (OSError, ValueError, wire.WireError):  # missing, unreadable, torn, invalid
             return None
 
-    def load(self) -> "tuple[State | None, int]":
-        """Return (state or None, boots so far) from the committed file, else from a
-        complete temporary file; (None, 0) when neither is valid. Never raises."""
+    def _load(self) -> "Any":
+        """The committed record, else a complete temporary one, else None; never raises."""
         got = self._read(self.path)
         if got is None:
             got = self._read(self.tmp)
-        if got is None:
-            return None, 0
-        return got[0], got[1]
+        return got
 
     def discard_tmp(self) -> None:
-        """Remove a leftover temporary file (after :meth:`load`, at boot)."""
+        """Remove a leftover temporary file (after loading, at boot)."""
         try:
             self.fs.remove(self.tmp)
         except OSError:
             pass
 
-    def save(self, state: State, boots: int) -> None:
-        """Write the state atomically; raises OSError when the file system fails."""
-        data = encode_state(state, boots)
+    def _commit(self, data: bytes) -> None:
+        """Write ``data`` atomically; raises OSError when the file system fails."""
         fs = self.fs
         f = fs.open(self.tmp, "wb")
         try:
@@ -153,3 +150,55 @@ class StateStore:
             self._pause()
             fs.rename(self.tmp, self.path)
         fs.sync()
+
+
+def counter_path(state_file: str) -> str:
+    """The counter file beside ``state_file`` (same folder, ``ns_ctr.txt``)."""
+    return state_file[:state_file.rfind("/") + 1] + "ns_ctr.txt"
+
+
+class CounterStore(AtomicRecord):
+    """The highest frame counter the replay guard may have accepted (0: none yet)."""
+
+    def _decode(self, data: bytes) -> int:
+        frame = wire.decode(data)
+        if frame.verb != "EVT" or frame.fields.get("kind") != "ctr":
+            raise ValueError("not a counter record")
+        return wire.field_int(frame.fields, "last", 0, wire.CTR_MAX)
+
+    def load(self) -> int:
+        got = self._load()
+        return 0 if got is None else got
+
+    def save(self, last: int) -> None:
+        self._commit(wire.encode(0, "EVT", (("kind", "ctr"), ("last", last))))
+
+
+class StateStore(AtomicRecord):
+    """Atomic save and checked load of the state file.
+
+    Parameters: ``path`` (the state file), ``fs``, ``pause_ms`` and ``sleep_ms`` as for
+    :class:`AtomicRecord`; ``bits``, the number of ladder bits (masks beyond them are
+    invalid); ``has_open``, whether the board has an open relay.
+    """
+
+    def __init__(self, path: str, bits: int, has_open: bool, fs: "Any" = None,
+                 pause_ms: int = 0, sleep_ms: "Any" = None) -> None:
+        AtomicRecord.__init__(self, path, fs, pause_ms, sleep_ms)
+        self.bits = bits
+        self.has_open = has_open
+
+    def _decode(self, data: bytes) -> "tuple[State, int]":
+        return decode_state(data, self.bits, self.has_open)
+
+    def load(self) -> "tuple[State | None, int]":
+        """Return (state or None, boots so far) from the committed file, else from a
+        complete temporary file; (None, 0) when neither is valid. Never raises."""
+        got = self._load()
+        if got is None:
+            return None, 0
+        return got[0], got[1]
+
+    def save(self, state: State, boots: int) -> None:
+        """Write the state atomically; raises OSError when the file system fails."""
+        self._commit(encode_state(state, boots))

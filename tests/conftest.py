@@ -298,3 +298,10 @@ def throwaway_ca(tmp_path: Path):
         return new_ca(tmp_path / f"ca{next(count)}", f"{name} {os.getpid()}")
 
     return make
+
+
+@pytest.fixture(autouse=True)
+def _host_counter_dir(tmp_path_factory: pytest.TempPathFactory, monkeypatch: pytest.MonkeyPatch):
+    """Signing hosts keep their frame counters in a folder of the test run, never in the
+    user's own state folder."""
+    monkeypatch.setenv("NULLSTEER_STATE_DIR", str(tmp_path_factory.mktemp("host-state")))

@@ -57,7 +57,7 @@ BAD_SET = [  # (fields, code): protocol rules of firmware/PROTOCOL.md
     ((("end", "A"), ("mask", 1), ("ohms", "900"), ("open", 0)), "KEY"),
     ((("end", "A"), ("ohms", "150"), ("open", 0)), "RANGE"),  # < table's lowest / 2
     ((("end", "A"), ("ohms", "9000"), ("open", 0)), "RANGE"),  # > table's highest * 2
-    ((("end", "A"), ("ohms", "nan"), ("open", 0)), "RANGE"),
+    ((("end", "A"), ("ohms", "nan"), ("open", 0)), "FORMAT"),  # not a finite decimal
     ((("end", "A"), ("mask", "1.5"), ("open", 0)), "FORMAT"),
 ]
 

@@ -6,6 +6,17 @@ the code attached to the class (2 for usage and configuration errors).
 
 from __future__ import annotations
 
+import re
+
+#: ``scheme://user:password@`` in any text: the password part is what :func:`redacted` hides
+_URL_PASSWORD = re.compile(r"(?P<head>[A-Za-z][A-Za-z0-9+.-]*://[^\s/?#@:]*):[^\s/?#]*@")
+
+
+def redacted(text: str) -> str:
+    """``text`` with the password of every URL in it replaced by ``***`` (for messages
+    and logs: a password must never be printed)."""
+    return _URL_PASSWORD.sub(lambda m: m.group("head") + ":***@", text)
+
 
 class NullsteerError(Exception):
     """Base class. ``exit_code`` is what the CLI returns for it."""

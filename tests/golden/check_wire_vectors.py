@@ -85,9 +85,9 @@ def run(vectors):
     for c in vectors["signed"]:
         key = binascii.unhexlify(c["key_hex"])
         fields = [(f[0], f[1]) for f in c["fields"]]
-        got = wire.sign(c["seq"], c["verb"], fields, key, c["ts"])
+        got = wire.sign(c["seq"], c["verb"], fields, key, c["ctr"])
         check(got == c["line"].encode(), "sign -> %r" % got)
-        check(wire.verify(got, key) == c["ts"], "verify good signature")
+        check(wire.verify(got, key) == c["ctr"], "verify good signature")
         _, exc = _code_of(lambda: wire.verify(got, key + b"x"))
         check(exc is not None and exc.code == wire.E_AUTH, "verify with a wrong key")
     return count[0], failures

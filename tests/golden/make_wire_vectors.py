@@ -62,6 +62,16 @@ def requests_bad():
          "seq": 17},
         {"name": "check value not hex", "line": ok[:-5] + "ZZZZ\n", "code": "FORMAT",
          "seq": 17},
+        {"name": "lower-case check digits", "line": ok[:-5] + ok[-5:].lower(),
+         "code": "FORMAT", "seq": 17},
+        {"name": "space-padded check digits", "line": sealed("NS1 20 PING").replace(
+            " *0", " * "), "code": "FORMAT", "seq": 20},  # check 0E1B written " E1B"
+        {"name": "marker with a sign", "line": sealed("NS+1 4 PING"), "code": "FORMAT",
+         "seq": 4},
+        {"name": "zero-padded marker", "line": sealed("NS01 4 PING"), "code": "FORMAT",
+         "seq": 4},
+        {"name": "zero-padded seq", "line": sealed("NS1 04 PING"), "code": "FORMAT",
+         "seq": 0},
         {"name": "oversize line", "line": sealed(long_body), "code": "SIZE", "seq": 0},
         {"name": "wrong protocol version", "line": sealed("NS2 4 PING"), "code": "VERSION",
          "seq": 4},
@@ -90,15 +100,28 @@ FIELD_INT = [  # fields, key, lo, hi, expected value or error code
     ({"mask": "-1"}, "mask", 0, 127, "RANGE"),
     ({"mask": "1.5"}, "mask", 0, 127, "FORMAT"),
     ({"mask": "12a"}, "mask", 0, 127, "FORMAT"),
+    ({"mask": "0x1_0"}, "mask", 0, 127, "FORMAT"),  # no digit separators
+    ({"mask": "1_0"}, "mask", 0, 127, "FORMAT"),
+    ({"mask": "037"}, "mask", 0, 127, "FORMAT"),  # no padding
+    ({"mask": "+37"}, "mask", 0, 127, "FORMAT"),
+    ({"mask": "0X25"}, "mask", 0, 127, "FORMAT"),  # the hex prefix is 0x
+    ({"mask": "0x"}, "mask", 0, 127, "FORMAT"),
     ({}, "mask", 0, 127, "MISSING"),
 ]
 FIELD_FLOAT = [
     ({"ohms": "900"}, "ohms", 195.0, 5034.0, 900.0),
     ({"ohms": "1.2e3"}, "ohms", 195.0, 5034.0, 1200.0),
     ({"ohms": "100"}, "ohms", 195.0, 5034.0, "RANGE"),
-    ({"ohms": "nan"}, "ohms", 195.0, 5034.0, "RANGE"),
-    ({"ohms": "inf"}, "ohms", 195.0, 5034.0, "RANGE"),
+    ({"ohms": "nan"}, "ohms", 195.0, 5034.0, "FORMAT"),
+    ({"ohms": "inf"}, "ohms", 195.0, 5034.0, "FORMAT"),
+    ({"ohms": "-inf"}, "ohms", 195.0, 5034.0, "FORMAT"),
+    ({"ohms": "1e999"}, "ohms", 195.0, 5034.0, "FORMAT"),  # overflows to infinity
     ({"ohms": "abc"}, "ohms", 195.0, 5034.0, "FORMAT"),
+    ({"ohms": "1_200"}, "ohms", 195.0, 5034.0, "FORMAT"),  # no digit separators
+    ({"ohms": "0900"}, "ohms", 195.0, 5034.0, "FORMAT"),  # no padding
+    ({"ohms": "900."}, "ohms", 195.0, 5034.0, "FORMAT"),
+    ({"ohms": ".5e3"}, "ohms", 195.0, 5034.0, "FORMAT"),
+    ({"ohms": "3889.4"}, "ohms", 195.0, 3889.4, 3889.4),
 ]
 FIELD_CHOICE = [
     ({"end": "A"}, "end", ["A", "B"], "A"),
@@ -133,9 +156,15 @@ def main():
         "field_choice": [{"fields": f, "key": k, "choices": c, "expect": e}
                          for f, k, c, e in FIELD_CHOICE],
         "signed": [{"seq": 40, "verb": "SET", "fields": [["end", "B"], ["mask", 5], ["open", 0]],
-                    "key_hex": b"flag-ne-demo-key".hex(), "ts": 1764601200,
+                    "key_hex": b"flag-ne-demo-key".hex(), "ctr": 1207,
                     "line": wire.sign(40, "SET", (("end", "B"), ("mask", 5), ("open", 0)),
-                                      b"flag-ne-demo-key", 1764601200).decode()}],
+                                      b"flag-ne-demo-key", 1207).decode()},
+                   {"seq": 41, "verb": "ERR", "fields": [["code", "REPLAY"],
+                                                         ["msg", "counter_not_above_1300"]],
+                    "key_hex": b"flag-ne-demo-key".hex(), "ctr": 1300,
+                    "line": wire.sign(41, "ERR", (("code", "REPLAY"),
+                                                  ("msg", "counter_not_above_1300")),
+                                      b"flag-ne-demo-key", 1300).decode()}],
     }
     (HERE / "wire_vectors.json").write_text(json.dumps(vectors, indent=1) + "\n")
 

@@ -15,8 +15,15 @@ A bundle is a folder holding exactly what goes onto the board's file system:
 * ``MANIFEST.json`` (stays on the host): firmware version, device, and the SHA-256 and
   size of every file, so ``deploy --bundle`` refuses a bundle edited after it was made.
 
-``board.json`` may hold secrets (MQTT password, signing key): the bundle folder is made
-readable by its owner only.
+``board.json`` may hold secrets (MQTT password, signing key): its files are written
+readable by their owner only, and a folder the bundle creates is owner-only too (an
+existing folder keeps its mode). ``--json`` output never shows the secrets.
+
+TLS (``mqtts://``): the board checks the broker's certificate against the URL's
+``ca=`` certificate, copied onto the board as ``ca.der`` (MicroPython's TLS reads DER),
+and the broker's name against the URL's host. A ``mqtts://`` URL without ``ca=`` is
+refused unless it says ``insecure=1``: a board that does not check the broker would give
+its MQTT password to any server that answers.
 
 Putting a bundle on a board: :mod:`nullsteer.board.deploy`.
 
@@ -56,6 +63,11 @@ PORT_MODULES = {"stdio": "port_stdio.py", "uart": "port_uart.py"}
 MQTT_MODULES = ("mqtt_client.py", "mqtt_link.py", "net.py")
 BOARD_FILE = "board.json"
 MANIFEST = "MANIFEST.json"
+CA_FILE = "ca.der"
+#: a file name on the board: one flat name that cannot leave the bundle's folder
+_BOARD_NAME = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.-]{0,63}$")
+#: board.json keys that hold secrets (never printed)
+SECRET_KEYS = (("mqtt", "password"), ("mqtt", "key_hex"), ("mqtt", "wifi", "password"))
 ENTRY = "main.py"
 FIRMWARE_KEYS = frozenset({"board_port", "uart_id", "baud", "tx_pin", "rx_pin", "de_pin",
                            "watchdog_ms", "wifi_ssid", "wifi_password_env"})
@@ -211,6 +223,26 @@ def board_presets(station: Station) -> dict[str, dict[str, Any]]:
     return out
 
 
+def broker_ca_der(device: Device) -> bytes | None:
+    """The CA certificate (DER) named by the ``ca=`` of an ``mqtts://`` link, else None."""
+    from nullsteer.board.links.mqtt_link import parse_url
+    url = parse_url(device.link)
+    if not url["tls"] or not url["ca"]:
+        return None
+    where = f"device {device.id}.link ca="
+    try:
+        data = Path(url["ca"]).read_bytes()
+    except OSError as exc:
+        raise ConfigError(where, f"cannot read {url['ca']}: {exc.strerror}") from None
+    if data[:1] == b"\x30":  # already DER (an ASN.1 SEQUENCE)
+        return data
+    import ssl
+    try:
+        return ssl.PEM_cert_to_DER_cert(data.decode("ascii"))
+    except (ValueError, UnicodeDecodeError):
+        raise ConfigError(where, f"{url['ca']} is not a PEM or DER certificate") from None
+
+
 def mqtt_block(device: Device, station: Station, fw: FirmwareSettings) -> dict[str, Any]:
     """The board's ``"mqtt"`` block for a device linked by ``mqtt://`` or ``mqtts://``."""
     from nullsteer.board.links.mqtt_link import parse_url
@@ -218,6 +250,18 @@ def mqtt_block(device: Device, station: Station, fw: FirmwareSettings) -> dict[s
     block: dict[str, Any] = {"host": url["host"], "port": url["port"], "tls": url["tls"],
                              "id": url["device"], "base": url["base"],
                              "keepalive_s": url["keepalive"], "name": device.id}
+    if url["tls"]:
+        if url["ca"]:
+            block["ca_file"] = CA_FILE
+            block["server_hostname"] = url["host"]
+        elif url["insecure"]:
+            block["insecure"] = True
+        else:
+            raise ConfigError(f"device {device.id}.link",
+                              "mqtts:// without ca=: the board could not check the broker's "
+                              "certificate and would hand its password to any server; add "
+                              "ca=<CA certificate file> to the URL, or insecure=1 to accept "
+                              "an unchecked broker")
     for key in ("user", "password"):
         if url[key] is not None:
             block[key] = url[key]
@@ -315,28 +359,60 @@ def make_bundle(station: Station, device: Device, ladder: dict[str, Any] | None 
     files.append(BundleFile("wire.py", Path(wire.__file__).read_bytes()))
     if "mqtt" in config:
         files.append(BundleFile("discovery.py", Path(discovery.__file__).read_bytes()))
+        ca = broker_ca_der(device)
+        if ca is not None:
+            files.append(BundleFile(CA_FILE, ca))
     entry = (folder / ENTRY).read_bytes()
     files.append(BundleFile(BOARD_FILE, (json.dumps(config, indent=1) + "\n").encode()))
     files.append(BundleFile(ENTRY, entry))
     return Bundle(device.id, firmware_version(folder), config, tuple(files))
 
 
+def _write_private(path: Path, data: bytes) -> None:
+    """Write ``path`` readable by its owner only, from the first byte on."""
+    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
+    with os.fdopen(fd, "wb") as f:
+        os.fchmod(f.fileno(), 0o600)  # a file that was there before keeps no wider mode
+        f.write(data)
+
+
 def write_bundle(bundle: Bundle, out_dir: Path) -> list[Path]:
-    """Write the bundle's files and MANIFEST.json into ``out_dir`` (owner-only access:
-    board.json may hold a password or key). Files of the folder not in the bundle are
-    left alone. Returns the written paths."""
-    out_dir.mkdir(parents=True, exist_ok=True)
-    out_dir.chmod(0o700)
+    """Write the bundle's files and MANIFEST.json into ``out_dir``, each owner-only
+    (board.json may hold a password or key). A folder made here is owner-only; an
+    existing one keeps its mode. Files of the folder not in the bundle are left alone.
+    Returns the written paths."""
+    if not out_dir.is_dir():
+        out_dir.parent.mkdir(parents=True, exist_ok=True)
+        out_dir.mkdir(mode=0o700)
     written = []
     for f in bundle.files:
-        path = out_dir / f.name
-        path.write_bytes(f.data)
-        path.chmod(0o600)
+        path = out_dir / board_name(f.name, "bundle")
+        _write_private(path, f.data)
         written.append(path)
     manifest = out_dir / MANIFEST
-    manifest.write_text(json.dumps(bundle.manifest(), indent=1) + "\n")
+    _write_private(manifest, (json.dumps(bundle.manifest(), indent=1) + "\n").encode())
     written.append(manifest)
     return written
+
+
+def board_name(name: object, where: str) -> str:
+    """``name`` if it is a plain file name for the board's folder (no ``/``, ``\\``,
+    ``..``, leading dot or absolute path), else ConfigError naming ``where``."""
+    if not isinstance(name, str) or not _BOARD_NAME.match(name) or ".." in name:
+        raise ConfigError(where, f"file name {name!r} is not a plain name inside the bundle")
+    return name
+
+
+def public_config(config: dict[str, Any]) -> dict[str, Any]:
+    """``config`` without its secrets (:data:`SECRET_KEYS`), for printing."""
+    out = json.loads(json.dumps(config))
+    for path in SECRET_KEYS:
+        holder = out
+        for key in path[:-1]:
+            holder = holder.get(key) if isinstance(holder, dict) else None
+        if isinstance(holder, dict):
+            holder.pop(path[-1], None)
+    return out
 
 
 def read_bundle(folder: Path) -> Bundle:
@@ -346,6 +422,7 @@ def read_bundle(folder: Path) -> Bundle:
         entries = manifest["files"]
         files = []
         for e in entries:
+            board_name(e["name"], f"--bundle {folder / MANIFEST}")
             data = (folder / e["name"]).read_bytes()
             if hashlib.sha256(data).hexdigest() != e["sha256"]:
                 raise ConfigError(f"--bundle {folder / e['name']}",

@@ -1,7 +1,11 @@
 """Talking to one board: requests with sequence numbers, timeouts, retries, typed replies.
 
 Commands are absolute ("be in this state"), so a retry after a lost reply is always
-safe; "flip" is computed here from the board's reported state.
+safe; "flip" is computed here from the board's reported state. A request is sent again,
+with a fresh sequence number (and a fresh frame counter when signed), after a timeout or
+when the board says the line arrived damaged (``ERR CRC``/``FORMAT``/``SIZE``: noise, or
+a lost newline that merged two lines). A ``REPLAY`` reply signed by the board moves the
+host's frame counter past the board's and the request is sent once more.
 """
 
 from __future__ import annotations
@@ -16,7 +20,11 @@ from nullsteer.station.bearing import FedEnd
 from nullsteer.errors import BoardError, ConfigError, LinkError
 
 __all__ = ["BoardInfo", "BoardState", "BoardStatus", "Controller", "FedEnd"]
+from nullsteer.board.counter import FrameCounter
 from nullsteer.board.links import Link
+
+#: ERR codes meaning "the line arrived damaged": the request is sent again
+RETRY_CODES = frozenset({wire.E_CRC, wire.E_FORMAT, wire.E_SIZE})
 
 log = logging.getLogger(__name__)
 
@@ -78,7 +86,7 @@ class BoardInfo:
 
 def _int(fields: dict[str, str], key: str, default: int = 0) -> int:
     try:
-        return int(fields.get(key, default))
+        return wire.parse_int(fields.get(key, str(default)))
     except ValueError:
         raise LinkError(f"board sent a bad {key}={fields.get(key)!r}") from None
 
@@ -86,8 +94,9 @@ def _int(fields: dict[str, str], key: str, default: int = 0) -> int:
 def state_from_fields(fields: dict[str, str]) -> BoardState:
     """A :class:`BoardState` from the fields of an OK reply to STATUS or SET."""
     try:
-        ohms = float(fields["ohms"]) if "ohms" in fields else None
-        return BoardState(FedEnd(fields["end"]), int(fields["mask"]), fields["open"] == "1", ohms)
+        ohms = wire.parse_decimal(fields["ohms"]) if "ohms" in fields else None
+        return BoardState(FedEnd(fields["end"]), wire.parse_uint(fields["mask"]),
+                          fields["open"] == "1", ohms)
     except (KeyError, ValueError) as exc:
         raise LinkError(f"board reply lacks a valid state field ({exc})") from None
 
@@ -110,17 +119,23 @@ class Controller:
     timeout_s : float
         How long to wait for each reply, seconds.
     retries : int
-        Extra attempts after a timeout (safe: every command is absolute).
+        Extra attempts after a timeout or a damaged line (safe: every command is absolute).
     key : bytes or None
         Shared key for signed frames (HMAC-SHA256), or None for unsigned frames.
+    counter : FrameCounter or None
+        The frame counter of signed frames (default: the host's file for ``key``, see
+        :mod:`nullsteer.board.counter`).
     """
 
     def __init__(self, link: Link, timeout_s: float = 1.0, retries: int = 2,
-                 key: bytes | None = None) -> None:
+                 key: bytes | None = None, counter: FrameCounter | None = None) -> None:
         self.link = link
         self.timeout_s = timeout_s
         self.retries = retries
         self.key = key
+        self.counter = counter if counter is not None or key is None \
+            else FrameCounter.for_key(key)
+        self.resyncs = 0
         self._seq = int(time.monotonic() * 1000) % wire.SEQ_MAX + 1
         self._info: BoardInfo | None = None
         self._table: list[tuple[int, float]] | None = None
@@ -131,34 +146,68 @@ class Controller:
         return self._seq
 
     def _frame(self, seq: int, verb: str, fields: Iterable[tuple[str, object]]) -> bytes:
-        if self.key is None:
+        if self.key is None or self.counter is None:
             return wire.encode(seq, verb, tuple(fields))
-        return wire.sign(seq, verb, tuple(fields), self.key, int(time.time()))
+        return wire.sign(seq, verb, tuple(fields), self.key, self.counter.next())
+
+    def _board_counter(self, raw: bytes) -> int | None:
+        """The board's last accepted counter from a REPLAY reply it signed, else None."""
+        if self.key is None:
+            return None
+        try:
+            return wire.verify(raw, self.key)
+        except wire.WireError:
+            return None
 
     def request(self, verb: str, fields: Iterable[tuple[str, object]] = ()) -> dict[str, str]:
         """Send one request and return the fields of its OK reply.
 
-        Raises :class:`BoardError` on an ERR reply and :class:`LinkError` when no valid
-        reply arrives after all attempts.
+        Raises :class:`BoardError` on an ERR reply other than a damaged line, and
+        :class:`LinkError` when no valid reply arrives after all attempts.
         """
         fields = tuple(fields)
-        seq = self._next_seq()
-        for attempt in range(self.retries + 1):
+        sent: list[int] = []
+        attempt = 0
+        resynced = False
+        damaged = ""
+        while attempt <= self.retries:
+            seq = self._next_seq()
+            sent.append(seq)
             line = self._frame(seq, verb, fields)
             log.debug("-> %s", line)
             self.link.write_line(line)
-            reply = self._await(seq)
-            if reply is None:
-                log.info("%s: no reply to %s (attempt %d)", self.link.url, verb, attempt + 1)
+            got = self._await(seq, sent)
+            attempt += 1
+            if got is None:
+                log.info("%s: no reply to %s (attempt %d)", self.link.url, verb, attempt)
                 continue
-            if reply.verb == "ERR":
-                raise BoardError(reply.fields.get("code", "?"),
-                                 reply.fields.get("msg", "").replace("_", " "))
-            return reply.fields
-        raise LinkError(f"{self.link.url}: no reply to {verb} after "
-                        f"{self.retries + 1} attempts of {self.timeout_s:g} s")
+            reply, raw = got
+            if reply.verb != "ERR":
+                return reply.fields
+            code = reply.fields.get("code", "?")
+            if code in RETRY_CODES:
+                damaged = code
+                log.info("%s: %s arrived damaged (ERR %s, attempt %d)", self.link.url, verb,
+                         code, attempt)
+                continue
+            board_ctr = self._board_counter(raw) if code == wire.E_REPLAY else None
+            if board_ctr is not None and not resynced and self.counter is not None:
+                resynced = True  # one catch-up per request; it is not a failed attempt
+                attempt -= 1
+                self.resyncs += 1
+                self.counter.advance_past(board_ctr)
+                log.info("%s: frame counter behind the board's (%d): catching up",
+                         self.link.url, board_ctr)
+                continue
+            raise BoardError(code, reply.fields.get("msg", "").replace("_", " "))
+        why = f"the board kept reporting damaged lines (ERR {damaged})" if damaged else \
+            f"no reply to {verb}"
+        raise LinkError(f"{self.link.url}: {why} after {self.retries + 1} attempts of "
+                        f"{self.timeout_s:g} s")
 
-    def _await(self, seq: int) -> wire.Frame | None:
+    def _await(self, seq: int, sent: list[int]) -> tuple[wire.Frame, bytes] | None:
+        """The reply to ``seq`` or, unless it only reports a damaged line, to an earlier
+        attempt of the same request (the board answered it late); None on timeout."""
         deadline = time.monotonic() + self.timeout_s
         while (remaining := deadline - time.monotonic()) > 0:
             raw = self.link.read_line(remaining)
@@ -170,7 +219,10 @@ class Controller:
                 log.info("%s: dropped a bad line (%s)", self.link.url, exc)
                 continue
             if frame.seq == seq:
-                return frame
+                return frame, raw
+            if frame.seq in sent and not (frame.verb == "ERR" and
+                                          frame.fields.get("code") in RETRY_CODES):
+                return frame, raw
             log.debug("%s: ignored %s seq %d", self.link.url, frame.verb, frame.seq)
         return None
 
@@ -209,7 +261,10 @@ class Controller:
                     raise LinkError("board sent an empty TABLE chunk")
                 for item in chunk:
                     mask, _, ohms = item.partition(":")
-                    rows.append((int(mask), float(ohms)))
+                    try:
+                        rows.append((wire.parse_uint(mask), wire.parse_decimal(ohms)))
+                    except ValueError:
+                        raise LinkError(f"board sent a bad TABLE row {item!r}") from None
             self._table = rows
         return self._table
 

@@ -24,7 +24,7 @@ import sys
 import time
 from pathlib import Path
 
-from nullsteer.board.bundle import Bundle
+from nullsteer.board.bundle import Bundle, board_name
 from nullsteer.errors import LinkError
 
 
@@ -53,6 +53,8 @@ def deploy_commands(bundle: Bundle, folder: Path, port: str, reset: bool = True)
     the parking reset nothing runs. A deploy that fails later leaves a board without
     ``main.py``: it boots to the prompt with every relay released, and a new deploy
     finishes the job."""
+    for f in bundle.files:
+        board_name(f.name, "bundle")
     park = ["connect", port, "exec", PARK_CODE, "+", "reset"]
     copy = ["connect", port]
     for i, f in enumerate(bundle.files):

@@ -7,7 +7,9 @@ Keys of each entry:
                 ``state=DIR`` is taken relative to the file, so a simulated board keeps its
                 relay state from one command to the next as a real one does
 ``board``       the board config JSON (pins, roles, ladder table), relative to the file
-``key_file``    optional file holding the shared signing key (hex), relative to the file
+``key_file``    optional file holding the shared signing key (hex), relative to the file;
+                refused when others may write it (they could change the key), a warning
+                when others may read it (``chmod 600`` it)
 ``key_env``     optional environment variable holding the shared key (hex)
 ``timeout_s``   reply timeout, seconds (default 1.0)
 ``retries``     extra attempts after a timeout (default 2)
@@ -17,12 +19,14 @@ from __future__ import annotations
 
 import os
 import re
+import stat
+import sys
 from dataclasses import dataclass
 from pathlib import Path
 from urllib.parse import parse_qsl, urlencode, urlsplit
 
 from nullsteer.station.config import Station, check_unknown, get_float, get_int, get_str
-from nullsteer.errors import ConfigError
+from nullsteer.errors import ConfigError, redacted
 
 _ID = re.compile(r"^[A-Za-z0-9_-]{1,32}$")
 _KEYS = frozenset({"id", "link", "board", "key_file", "key_env", "timeout_s", "retries"})
@@ -61,6 +65,23 @@ def _resolve_sim_state(station: Station, link: str) -> str:
     return f"sim://{parts.netloc}{parts.path}" + (f"?{urlencode(fixed, safe='/')}" if fixed else "")
 
 
+def check_key_file(path: Path, where: str) -> None:
+    """Refuse a key file that group or others may write; warn when they may read it
+    (POSIX permission bits; not checked where the system has none)."""
+    if os.name != "posix":
+        return
+    try:
+        mode = stat.S_IMODE(path.stat().st_mode)
+    except OSError:
+        return  # reading it reports the problem
+    if mode & (stat.S_IWGRP | stat.S_IWOTH):
+        raise ConfigError(where, f"{path} is writable by others (mode {mode:04o}): anyone "
+                                 "able to change it can drive the board; chmod 600 it")
+    if mode & (stat.S_IRGRP | stat.S_IROTH):
+        sys.stderr.write(f"nullsteer: warning: {where}: {path} is readable by others "
+                         f"(mode {mode:04o}); chmod 600 it\n")
+
+
 def parse_device(station: Station, table: dict, index: int) -> Device:
     where = f"device[{index}]"
     check_unknown(table, _KEYS, where)
@@ -69,13 +90,14 @@ def parse_device(station: Station, table: dict, index: int) -> Device:
         raise ConfigError(f"{where}.id", f"use 1-32 letters, digits, '-' or '_', got {dev_id!r}")
     link = get_str(table, "link", where)
     if "://" not in link:
-        raise ConfigError(f"{where}.link", f"expected a URL such as serial:///dev/ttyUSB0, got {link!r}")
+        raise ConfigError(f"{where}.link", f"expected a URL such as serial:///dev/ttyUSB0, got {redacted(link)!r}")
     link = _resolve_sim_state(station, link)
     board = table.get("board")
     board_path = station.resolve(get_str(table, "board", where)) if board is not None else None
     key = None
     if "key_file" in table:
         path = station.resolve(get_str(table, "key_file", where))
+        check_key_file(path, f"{where}.key_file")
         try:
             key = _read_key(path.read_text(), f"{where}.key_file")
         except OSError as exc:

@@ -19,7 +19,7 @@ from collections.abc import Sequence
 from typing import Any
 
 from nullsteer import __version__
-from nullsteer.errors import NullsteerError
+from nullsteer.errors import NullsteerError, redacted
 
 #: Command modules, in the order their commands are listed in ``--help``.
 COMMAND_MODULES = (
@@ -91,8 +91,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     args = parser.parse_args(argv)
     try:
         code = args.func(args)
-    except NullsteerError as exc:
-        sys.stderr.write(f"nullsteer: error: {exc}\n")
+    except NullsteerError as exc:  # messages never show a URL's password
+        sys.stderr.write(f"nullsteer: error: {redacted(str(exc))}\n")
         return exc.exit_code
     except KeyboardInterrupt:
         sys.stderr.write("nullsteer: interrupted\n")

@@ -14,7 +14,8 @@ import shlex
 import shutil
 from pathlib import Path
 
-from nullsteer.board.bundle import Bundle, make_bundle, read_bundle, staged_folder, write_bundle
+from nullsteer.board.bundle import (Bundle, make_bundle, public_config, read_bundle,
+                                    staged_folder, write_bundle)
 from nullsteer.board.deploy import deploy, deploy_commands
 from nullsteer.cli.common import add_json_flag, print_json
 from nullsteer.station.config import load_station
@@ -57,6 +58,10 @@ def summary(bundle: Bundle) -> list[str]:
         m = c["mqtt"]
         link_text += f" + MQTT {m['host']}:{m['port']} as {m['id']}" + (
             ", signed frames" if m.get("key_hex") else "")
+        if m.get("tls"):
+            link_text += (", TLS: broker NOT checked (insecure)" if m.get("insecure") else
+                          f", TLS: broker checked ({m.get('ca_file')}, name "
+                          f"{m.get('server_hostname')})")
     table = c["ladder"].get("table") or []
     lines = [f"board {c['board']} (device {bundle.device_id}), firmware {bundle.firmware_version}",
              f"relays: {', '.join(f'{n} {role}' for role, n in roles.items())}; driver {kind}",
@@ -78,7 +83,7 @@ def run_bundle(args: argparse.Namespace) -> int:
     if args.json:
         print_json({"dir": str(out), "device": bundle.device_id,
                     "firmware": bundle.firmware_version, "files": _file_rows(bundle),
-                    "board_config": bundle.board_config})
+                    "board_config": public_config(bundle.board_config)})
         return 0
     for line in summary(bundle):
         print(line)

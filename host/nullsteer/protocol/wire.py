@@ -18,11 +18,17 @@ Frame layout (one ASCII line, readable on a serial terminal)::
 * fields: ``key=value``; keys are ``[a-z][a-z0-9_]*`` (at most 16 characters); values
   are 1..200 printable ASCII characters without spaces or ``*``.
 * ``*<CRC>``: CRC-16/CCITT-FALSE (poly 0x1021, init 0xFFFF, no reflection, no final
-  XOR) of every byte before the space that precedes ``*``, as four upper-case hex digits.
+  XOR) of every byte before the space that precedes ``*``, as exactly four upper-case hex
+  digits (``0-9A-F``).
 * a line is at most :data:`MAX_LINE` bytes including its ``\\n``; ``\\r\\n`` is accepted.
+* numbers are exact: the marker is ``NS`` + the version without sign or padding; the
+  sequence number and decimal fields have no sign (``-`` only where a field may be
+  negative), no leading zeros, no digit separators; hex fields are ``0x`` + 1..8 hex
+  digits; decimal fractions are ``digits[.digits][e[+-]digits]`` and finite.
 
-An optional per-device key signs a request: fields ``ts=<unix seconds>`` and, last,
-``sig=<64 hex>`` = HMAC-SHA256(key, every byte before `` sig=``). See :func:`sign`.
+An optional per-device key signs a request: fields ``ctr=<counter>`` (1..CTR_MAX, larger
+than every counter the board accepted before) and, last, ``sig=<64 hex>`` =
+HMAC-SHA256(key, every byte before `` sig=``). See :func:`sign`.
 
 Errors are raised as :class:`WireError` with one of the ``E_*`` codes; the firmware turns
 them into ``ERR`` replies with :func:`encode_error`.
@@ -45,6 +51,7 @@ MAX_LINE = 512
 MAX_KEY = 16
 MAX_VALUE = 200
 SEQ_MAX = 65535
+CTR_MAX = 2 ** 48 - 1  # largest frame counter of a signed frame
 
 # Request verbs and the keys each one takes (besides the signature keys).
 REQUEST_KEYS = {
@@ -55,7 +62,7 @@ REQUEST_KEYS = {
     "TEST": ("dwell_ms",),
     "TABLE": ("start", "count"),
 }
-AUTH_KEYS = ("ts", "sig")
+AUTH_KEYS = ("ctr", "sig")
 REPLY_VERBS = ("OK", "ERR", "EVT")
 
 # Error codes (the ``code=`` of an ERR reply).
@@ -68,7 +75,7 @@ E_KEY = "KEY"  # unknown or duplicated key for this verb
 E_MISSING = "MISSING"  # a required key is absent
 E_RANGE = "RANGE"  # a value out of range (mask beyond the ladder, end not A/B...)
 E_AUTH = "AUTH"  # signature missing or wrong
-E_REPLAY = "REPLAY"  # signed frame older than the last accepted one, or outside the window
+E_REPLAY = "REPLAY"  # signed frame whose counter is not above the last accepted one
 E_STATE = "STATE"  # command not possible in the board's state (e.g. no ladder table)
 E_HW = "HW"  # hardware fault reported by the board
 ERROR_CODES = (E_SIZE, E_FORMAT, E_CRC, E_VERSION, E_VERB, E_KEY, E_MISSING, E_RANGE,
@@ -128,6 +135,77 @@ def _valid_value(value):
     for ch in value:
         o = ord(ch)
         if o < 0x21 or o > 0x7E or ch == "*":
+            return False
+    return True
+
+
+def _digits(text):
+    """True for a non-empty string of ASCII decimal digits."""
+    if not text:
+        return False
+    for ch in text:
+        if not ("0" <= ch <= "9"):
+            return False
+    return True
+
+
+def parse_uint(text):
+    """A decimal whole number without sign, padding or separators (``0``, ``17``);
+    raises ValueError otherwise."""
+    if not _digits(text) or (len(text) > 1 and text[0] == "0"):
+        raise ValueError("not a plain decimal number")
+    return int(text)
+
+
+def parse_int(text):
+    """:func:`parse_uint` with an optional ``-``, or ``0x`` + 1..8 hex digits."""
+    if text.startswith("0x"):
+        digits = text[2:]
+        if not 1 <= len(digits) <= 8:
+            raise ValueError("0x needs 1..8 hex digits")
+        for ch in digits:
+            if not ("0" <= ch <= "9" or "a" <= ch <= "f" or "A" <= ch <= "F"):
+                raise ValueError("not a hex digit")
+        return int(digits, 16)
+    if text.startswith("-"):
+        value = parse_uint(text[1:])
+        if value == 0:
+            raise ValueError("-0")
+        return -value
+    return parse_uint(text)
+
+
+def parse_decimal(text):
+    """A finite number written ``[-]digits[.digits][(e|E)[+-]digits]`` (integer part
+    without padding); raises ValueError for anything else, nan, inf and overflow."""
+    rest = text[1:] if text.startswith("-") else text
+    mant, exp = rest, ""
+    for mark in ("e", "E"):
+        at = rest.find(mark)
+        if at >= 0:
+            mant, exp = rest[:at], rest[at + 1:]
+            if exp[:1] in ("+", "-"):
+                exp = exp[1:]
+            if not _digits(exp):
+                raise ValueError("bad exponent")
+            break
+    dot = mant.find(".")
+    whole = mant if dot < 0 else mant[:dot]
+    parse_uint(whole)
+    if dot >= 0 and not _digits(mant[dot + 1:]):
+        raise ValueError("bad fraction")
+    value = float(text)
+    if value != value or value in (float("inf"), float("-inf")):
+        raise ValueError("not finite")
+    return value
+
+
+def _is_check(text):
+    """Exactly four upper-case hex digits."""
+    if len(text) != 4:
+        return False
+    for ch in text:
+        if not ("0" <= ch <= "9" or "A" <= ch <= "F"):
             return False
     return True
 
@@ -198,18 +276,24 @@ def hmac_sha256(key, message):
     return hashlib.sha256(bytes([b ^ 0x5C for b in key]) + inner).digest()
 
 
-def sign(seq, verb, fields, key, ts):
-    """Encode a request signed with ``key`` (bytes) at unix time ``ts`` (int seconds)."""
-    body = _body(seq, verb, tuple(fields) + (("ts", ts),))
+def sign(seq, verb, fields, key, ctr):
+    """Encode a frame signed with ``key`` (bytes) and frame counter ``ctr`` (1..CTR_MAX).
+
+    Requests carry the host's next counter; the board signs its ``ERR code=REPLAY``
+    reply with its last accepted counter, so a host can catch up (PROTOCOL.md)."""
+    if not (1 <= ctr <= CTR_MAX):
+        raise ValueError("ctr out of range: %r" % (ctr,))
+    body = _body(seq, verb, tuple(fields) + (("ctr", ctr),))
     digest = binascii.hexlify(hmac_sha256(key, body.encode())).decode()
     return _seal(body + " sig=" + digest)
 
 
 def verify(line, key):
-    """Check the signature of a raw request line; returns its ``ts`` (int).
+    """Check the signature of a raw line; returns its counter ``ctr`` (int).
 
-    Raises :class:`WireError` ``E_AUTH`` when the signature is absent or wrong. The
-    caller checks ``ts`` and ``seq`` against its replay window.
+    Raises :class:`WireError` ``E_AUTH`` when the signature is absent or wrong or the
+    counter is not the field just before it. The caller checks ``ctr`` against the
+    last accepted one.
     """
     text = _strip(line)
     star = text.rfind(" *")
@@ -221,13 +305,16 @@ def verify(line, key):
     want = binascii.hexlify(hmac_sha256(key, body.encode())).decode()
     if not _same(given, want):
         raise WireError(E_AUTH, "signature does not match")
-    ts_at = body.rfind(" ts=")
-    if ts_at < 0:
-        raise WireError(E_AUTH, "signed frame has no ts")
+    ctr_at = body.rfind(" ctr=")
+    if ctr_at < 0:
+        raise WireError(E_AUTH, "signed frame has no ctr")
     try:
-        return int(body[ts_at + 4:])
+        ctr = parse_uint(body[ctr_at + 5:])
     except ValueError:
-        raise WireError(E_AUTH, "bad ts")
+        raise WireError(E_AUTH, "bad ctr")
+    if not (1 <= ctr <= CTR_MAX):
+        raise WireError(E_AUTH, "ctr out of range")
+    return ctr
 
 
 def _same(a, b):
@@ -248,8 +335,13 @@ def _strip(line):
             if b > 0x7E or (b < 0x20 and b not in (10, 13)):
                 raise WireError(E_FORMAT, "non-printable byte 0x%02X" % b)
         line = line.decode()
-    elif len(line) > MAX_LINE:
-        raise WireError(E_SIZE, "line longer than %d bytes" % MAX_LINE)
+    else:
+        if len(line) > MAX_LINE:
+            raise WireError(E_SIZE, "line longer than %d bytes" % MAX_LINE)
+        for ch in line:
+            o = ord(ch)
+            if o > 0x7E or (o < 0x20 and o not in (10, 13)):
+                raise WireError(E_FORMAT, "non-printable character 0x%02X" % o)
     if line.endswith("\n"):
         line = line[:-1]
     if line.endswith("\r"):
@@ -261,8 +353,8 @@ def _guess_seq(text):
     parts = text.split(" ")
     if len(parts) > 1:
         try:
-            n = int(parts[1])
-            if 0 <= n <= SEQ_MAX:
+            n = parse_uint(parts[1])
+            if n <= SEQ_MAX:
                 return n
         except ValueError:
             pass
@@ -281,31 +373,31 @@ def decode(line):
     body = text[:star]
     check = text[star + 2:]
     seq_guess = _guess_seq(body)
-    if len(check) != 4:
-        raise WireError(E_FORMAT, "check value must be 4 hex digits", seq_guess)
-    try:
-        want = int(check, 16)
-    except ValueError:
-        raise WireError(E_FORMAT, "check value is not hex", seq_guess)
+    if not _is_check(check):
+        raise WireError(E_FORMAT, "check value must be 4 upper-case hex digits", seq_guess)
+    want = int(check, 16)
     if crc16_ccitt_false(body.encode()) != want:
         raise WireError(E_CRC, "check value does not match", seq_guess)
     parts = body.split(" ")
     if len(parts) < 3:
         raise WireError(E_FORMAT, "frame needs marker, seq and verb", seq_guess)
     marker = parts[0]
-    if not marker.startswith(MARKER) or len(marker) < 3:
+    if not marker.startswith(MARKER):
         raise WireError(E_FORMAT, "frame must start with " + MARKER, seq_guess)
     try:
-        version = int(marker[len(MARKER):])
+        version = parse_uint(marker[len(MARKER):])
     except ValueError:
         raise WireError(E_FORMAT, "bad version number", seq_guess)
     if version != VERSION:
         raise WireError(E_VERSION, "protocol version %d not supported (speaks %d)"
                         % (version, VERSION), seq_guess)
     seq_text = parts[1]
-    if not seq_text.isdigit() or len(seq_text) > 5 or int(seq_text) > SEQ_MAX:
+    try:
+        seq = parse_uint(seq_text) if len(seq_text) <= 5 else SEQ_MAX + 1
+    except ValueError:
+        seq = SEQ_MAX + 1
+    if seq > SEQ_MAX:
         raise WireError(E_FORMAT, "bad sequence number", 0)
-    seq = int(seq_text)
     verb = parts[2]
     fields = {}
     for token in parts[3:]:
@@ -345,20 +437,15 @@ def decode_reply(line):
 
 
 def field_int(fields, key, lo, hi, seq=0, default=None):
-    """An integer field (decimal, or hex with ``0x``) within lo..hi inclusive."""
+    """An integer field (:func:`parse_int`: decimal, or hex with ``0x``) within lo..hi."""
     text = fields.get(key)
     if text is None:
         if default is not None:
             return default
         raise WireError(E_MISSING, "missing " + key, seq)
     try:
-        if text.startswith("0x") or text.startswith("0X"):
-            value = int(text[2:], 16)
-        else:
-            if not (text.isdigit() or (text[0] == "-" and text[1:].isdigit())):
-                raise ValueError
-            value = int(text)
-    except (ValueError, IndexError):
+        value = parse_int(text)
+    except ValueError:
         raise WireError(E_FORMAT, "%s is not a whole number" % key, seq)
     if value < lo or value > hi:
         raise WireError(E_RANGE, "%s=%d outside %d..%d" % (key, value, lo, hi), seq)
@@ -366,15 +453,15 @@ def field_int(fields, key, lo, hi, seq=0, default=None):
 
 
 def field_float(fields, key, lo, hi, seq=0):
-    """A decimal number field within lo..hi inclusive."""
+    """A decimal number field (:func:`parse_decimal`, finite) within lo..hi inclusive."""
     text = fields.get(key)
     if text is None:
         raise WireError(E_MISSING, "missing " + key, seq)
     try:
-        value = float(text)
+        value = parse_decimal(text)
     except ValueError:
-        raise WireError(E_FORMAT, "%s is not a number" % key, seq)
-    if not (lo <= value <= hi):  # also false for nan
+        raise WireError(E_FORMAT, "%s is not a finite decimal number" % key, seq)
+    if not (lo <= value <= hi):
         raise WireError(E_RANGE, "%s=%s outside %s..%s" % (key, text, lo, hi), seq)
     return value
 

@@ -24,7 +24,7 @@ import importlib
 from typing import Protocol
 from urllib.parse import urlsplit
 
-from nullsteer.errors import ConfigError
+from nullsteer.errors import ConfigError, redacted
 
 #: scheme -> module defining ``open_url(url: str, **options) -> Link``
 SCHEMES = {
@@ -56,7 +56,7 @@ class Link(Protocol):
 def open_link(url: str, **options: object) -> Link:
     """Open the link named by ``url``; unknown schemes raise ConfigError (exit 2)."""
     if not url or "://" not in url:
-        raise ConfigError("--link", f"expected a URL such as serial:///dev/ttyUSB0, got {url!r}")
+        raise ConfigError("--link", f"expected a URL such as serial:///dev/ttyUSB0, got {redacted(url)!r}")
     scheme = urlsplit(url).scheme.lower()
     module_name = SCHEMES.get(scheme)
     if module_name is None:

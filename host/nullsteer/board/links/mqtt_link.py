@@ -10,7 +10,9 @@ is the same over TLS (default port 8883 instead of 1883). Options:
 ``password_env``    read the password from this environment variable instead of the URL
 ``ca``              CA certificate (PEM) for mqtts (default: the system's CAs)
 ``cert``, ``key``   client certificate and key (PEM) for brokers that ask for one
-``insecure``        ``1``: do not check the broker's host name against its certificate
+``insecure``        ``1``: the host does not check the broker's host name against its
+                    certificate; a board bundled for ``mqtts://`` without ``ca`` does
+                    not check the broker at all (refused without this option)
 ``connect_timeout`` seconds to wait for the first connection (default 5)
 =================== ==================================================================
 
@@ -52,7 +54,7 @@ from urllib.parse import unquote, urlsplit, urlunsplit
 
 import paho.mqtt.client as mqtt
 
-from nullsteer.errors import ConfigError, LinkError
+from nullsteer.errors import ConfigError, LinkError, redacted
 from nullsteer.board.links import query_options
 
 log = logging.getLogger(__name__)
@@ -74,16 +76,6 @@ def _guarded(fn: Callable[..., None]) -> Callable[..., None]:
     return wrapper
 
 
-def redacted(url: str) -> str:
-    """``url`` with the password (if any) replaced by ``***``, for messages and logs."""
-    parts = urlsplit(url)
-    if parts.password is None:
-        return url
-    netloc = parts.netloc.rsplit("@", 1)[1]
-    user = parts.netloc.rsplit("@", 1)[0].split(":", 1)[0]
-    return urlunsplit(parts._replace(netloc=f"{user}:***@{netloc}"))
-
-
 def tls_failure(exc: ssl.SSLError) -> str:
     """One line on why a TLS handshake failed."""
     if isinstance(exc, ssl.SSLCertVerificationError):
@@ -93,24 +85,25 @@ def tls_failure(exc: ssl.SSLError) -> str:
 
 def parse_url(url: str) -> dict[str, Any]:
     """Split an mqtt(s) URL into connection settings; bad parts raise ConfigError."""
+    shown = redacted(url)  # what messages may show
     parts = urlsplit(url)
     options = query_options(url)
     for key in options:
         if key not in OPTIONS:
-            raise ConfigError("--link", f"unknown option {key!r} in {url!r} "
+            raise ConfigError("--link", f"unknown option {key!r} in {shown!r} "
                                         f"(known: {', '.join(sorted(OPTIONS))})")
     tls = parts.scheme == "mqtts"
     device = parts.path.strip("/")
     if not device or "/" in device or any(c in device for c in "+# "):
-        raise ConfigError("--link", f"expected mqtt://host/<device-id>, got {url!r}")
+        raise ConfigError("--link", f"expected mqtt://host/<device-id>, got {shown!r}")
     if not parts.hostname:
-        raise ConfigError("--link", f"no broker host in {url!r}")
+        raise ConfigError("--link", f"no broker host in {shown!r}")
     try:
         port = parts.port or (8883 if tls else 1883)
         keepalive = int(options.get("keepalive", "30"))
         timeout_s = float(options.get("connect_timeout", "5"))
     except ValueError as exc:
-        raise ConfigError("--link", f"bad number in {url!r}: {exc}") from None
+        raise ConfigError("--link", f"bad number in {shown!r}: {exc}") from None
     if not 0 < timeout_s <= 600:  # also refuses nan and inf
         raise ConfigError("--link", f"connect_timeout must be > 0 and at most 600 s, got {timeout_s:g}")
     if not 5 <= keepalive <= 3600:

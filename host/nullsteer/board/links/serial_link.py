@@ -19,7 +19,7 @@ from urllib.parse import urlsplit
 import serial
 
 from nullsteer.protocol import wire
-from nullsteer.errors import ConfigError, LinkError
+from nullsteer.errors import ConfigError, LinkError, redacted
 from nullsteer.board.links import query_options
 
 DEFAULT_BAUD = 115200
@@ -101,11 +101,11 @@ def open_url(url: str, **_: object) -> SerialLink:
         if parts.scheme == "serial":
             device = (parts.netloc + parts.path) or ""
             if not device:
-                raise ConfigError("--link", f"no port in {url!r} (e.g. serial:///dev/ttyUSB0)")
+                raise ConfigError("--link", f"no port in {redacted(url)!r} (e.g. serial:///dev/ttyUSB0)")
             port = serial.Serial(device, baudrate=baud, timeout=0.05,
                                  rtscts=_flag(options, "rtscts"), dsrdtr=_flag(options, "dsrdtr"))
         else:
             port = serial.serial_for_url(url.split("?")[0], baudrate=baud, timeout=0.05)
     except (serial.SerialException, OSError, ValueError) as exc:
-        raise LinkError(f"cannot open {url}: {exc}") from None
+        raise LinkError(f"cannot open {redacted(url)}: {exc}") from None
     return SerialLink(port, url)
