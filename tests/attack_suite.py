@@ -401,8 +401,8 @@ def cuts(fig: Figures, rng: random.Random, n: int, budget_s: float) -> None:
 
 # --- MQTT -------------------------------------------------------------------------------
 def _mqtt_client_module() -> Any:
-    from nullsteer.board.bundle import _firmware_module
-    _firmware_module("mqtt_link")
+    from nullsteer.sim.firmware import firmware_module
+    firmware_module("mqtt_link")
     return sys.modules["mqtt_client"]
 
 

@@ -180,8 +180,8 @@ def test_bundle_for_mqtts_without_a_ca_is_refused_unless_insecure(tmp_path, caps
 
 
 def test_board_refuses_tls_without_a_ca_unless_insecure():
-    from nullsteer.board.bundle import _firmware_module
-    mqtt_link = _firmware_module("mqtt_link")
+    from nullsteer.sim.firmware import firmware_module
+    mqtt_link = firmware_module("mqtt_link")
     import sys
     with pytest.raises(sys.modules["boardcfg"].BoardConfigError) as err:
         mqtt_link.parse_mqtt({"host": "h", "id": "d", "tls": True})

@@ -147,8 +147,8 @@ def test_bearing_set_refuses_non_finite_numbers(make_broker):
 
 
 def _guard_parts():
-    from nullsteer.board.bundle import _firmware_module
-    mqtt_link = _firmware_module("mqtt_link")
+    from nullsteer.sim.firmware import firmware_module
+    mqtt_link = firmware_module("mqtt_link")
     import store
     return mqtt_link, store
 

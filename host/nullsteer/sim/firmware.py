@@ -91,7 +91,7 @@ def check_board_config(config: dict[str, Any]) -> Any:
     """
     cfg = parse_board_config(config)
     if "mqtt" in config:
-        mqtt_link = _firmware_module("mqtt_link")
+        mqtt_link = firmware_module("mqtt_link")
         boardcfg = sys.modules["boardcfg"]
         try:
             mqtt_link.parse_mqtt(config["mqtt"], cfg.bits)
@@ -100,7 +100,7 @@ def check_board_config(config: dict[str, Any]) -> Any:
     return cfg
 
 
-def _firmware_module(name: str) -> Any:
+def firmware_module(name: str) -> Any:
     """A firmware module beyond the core, loaded under CPython (needs the core loaded)."""
     load_firmware()
     for dep in ("mqtt_client", name):
