@@ -26,6 +26,7 @@ COMMAND_MODULES = (
     "nullsteer.cli.sun",
     "nullsteer.cli.schedule",
     "nullsteer.cli.service",
+    "nullsteer.cli.serve",
     "nullsteer.cli.autonull",
     "nullsteer.cli.noise",
     "nullsteer.cli.plot",
