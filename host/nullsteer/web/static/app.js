@@ -118,22 +118,29 @@ function renderPresets(id) {
   const c = cards.get(id);
   if (!c || !station) return;
   const box = $(c.el, "presets");
-  box.replaceChildren();
-  for (const p of station.presets) {
-    const b = document.createElement("button");
-    b.type = "button";
-    b.textContent = p.name;
-    b.dataset.preset = p.name;
-    b.title = p.open ? "termination open" :
-      `fed ${p.fed_end}, ${p.ohms} Ω` + (p.null_bearing_deg != null ? `, null ${fmtDeg(p.null_bearing_deg)}` : "");
-    b.setAttribute("aria-pressed", String(!!(c.snap && (c.snap.presets || []).includes(p.name))));
-    b.addEventListener("click", () => {
-      const body = { name: p.name };
-      const f = Number($(c.el, "freq").value);
-      if (f > 0) body.freq_mhz = f;
-      command(id, "preset", body);
-    });
-    box.appendChild(b);
+  const names = station.presets.map(p => p.name).join("\n");
+  if (box.dataset.names !== names) {   // rebuild only when the station's presets change
+    box.dataset.names = names;
+    box.replaceChildren();
+    for (const p of station.presets) {
+      const b = document.createElement("button");
+      b.type = "button";
+      b.textContent = p.name;
+      b.dataset.preset = p.name;
+      b.title = p.open ? "termination open" :
+        `fed ${p.fed_end}, ${p.ohms} Ω` + (p.null_bearing_deg != null ? `, null ${fmtDeg(p.null_bearing_deg)}` : "");
+      b.addEventListener("click", () => {
+        const body = { name: p.name };
+        const f = Number($(c.el, "freq").value);
+        if (f > 0) body.freq_mhz = f;
+        command(id, "preset", body);
+      });
+      box.appendChild(b);
+    }
+  }
+  const now = (c.snap && c.snap.presets) || [];
+  for (const b of box.querySelectorAll("button")) {
+    b.setAttribute("aria-pressed", String(now.includes(b.dataset.preset)));
   }
 }
 
