@@ -176,6 +176,8 @@ function render(snap) {
   if (snap.short) term = "shorted";
   $(el, "term").textContent = term;
   $(el, "preset-now").textContent = (snap.presets && snap.presets.length) ? snap.presets.join(" / ") : "custom";
+  const up = snap.uptime_s >= 3600 ? (snap.uptime_s / 3600).toFixed(1) + " h" : Math.round(snap.uptime_s / 60) + " min";
+  $(el, "diag").textContent = `firmware ${snap.firmware} · boot ${snap.boots} · up ${up}`;
   $(el, "short").hidden = !("short" in snap);
   $(el, "short").textContent = snap.short ? "Remove the short" : "Short the termination";
   const slider = $(el, "slider");
