@@ -214,7 +214,19 @@ class Desk:
                                                             key=lambda p: p.name)],
             "devices": [d for d in self.devices],
             "autonull_source": "command" if self.autonull_command else "sim",
+            "autonull_freq_mhz": self.autonull_freq_hz() / 1e6,
         }
+
+    def autonull_freq_hz(self) -> float:
+        """Where the page offers to auto-null: the loudest simulated station's frequency
+        when the virtual receiver is the source, else the band's middle."""
+        from nullsteer.reception.virtual import parse_scenario
+
+        if self.autonull_command is None:
+            stations = parse_scenario(self.station).stations
+            if stations:
+                return float(max(stations, key=lambda s: s.field_dbuv_per_m).freq_hz)
+        return self.default_freq_hz
 
     def preset_json(self, p: Preset) -> dict[str, Any]:
         out: dict[str, Any] = {"name": p.name, "fed_end": p.fed_end.value, "ohms": p.ohms,

@@ -92,7 +92,7 @@ function makeCard(id) {
   });
   const freq = station ? station.default_freq_mhz : 1.83;
   $(el, "freq").value = freq.toFixed(3);
-  $(el, "an-freq").value = freq.toFixed(3);
+  $(el, "an-freq").value = (station ? station.autonull_freq_mhz : freq).toFixed(3);
   document.getElementById("devices").appendChild(el);
   const c = { el, snap: null, patternKey: null };
   cards.set(id, c);
@@ -236,7 +236,12 @@ function autonullEvent(ev) {
   const c = cards.get(ev.device);
   if (!c) return;
   const list = $(c.el, "probes");
-  if (ev.kind === "start") { list.replaceChildren(); $(c.el, "an-result").textContent = "running…"; return; }
+  if (ev.kind === "start") {
+    list.replaceChildren();
+    delete list.dataset.ref;
+    $(c.el, "an-result").textContent = "running…";
+    return;
+  }
   if (ev.kind === "reference" || ev.kind === "probe" || ev.kind === "final") {
     const li = document.createElement("li");
     li.className = ev.kind;
@@ -245,7 +250,11 @@ function autonullEvent(ev) {
     const bar = document.createElement("span");
     bar.className = "bar";
     const level = ev.kind === "probe" ? ev.probe.level_db : ev.level_db;
-    bar.style.width = Math.max(2, Math.min(100, 100 + level)) + "%";   // -100 dB.. 0 dB
+    // full width at the first reading (the reference), 2.5 % less per dB below it
+    if (list.dataset.ref === undefined || !list.children.length) list.dataset.ref = level;
+    const rel = level - Number(list.dataset.ref);
+    bar.style.width = Math.max(2, Math.min(100, 100 + 2.5 * rel)) + "%";
+    bar.title = `${rel.toFixed(1)} dB against the first reading`;
     const val = document.createElement("span");
     val.textContent = level.toFixed(1) + " dB";
     li.append(name, bar, val);
