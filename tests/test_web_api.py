@@ -198,7 +198,7 @@ def test_autonull_from_the_page_shows_probes_and_its_preset_at_once(page, tmp_pa
         assert status == 202 and out["run"]["fed_end"] == "A"
         # a second command while it runs is refused
         busy = client.post(DEV + "/flip")
-        assert busy[0] in (200, 409)
+        assert busy[0] == 409 and "auto-null" in busy[1]["error"]
         done = events.wait(lambda n, d: n == "autonull" and d["kind"] in ("done", "failed"),
                            timeout_s=60)
         assert done is not None and done[1]["kind"] == "done", done
@@ -244,3 +244,65 @@ def test_serve_refuses_a_public_address_without_a_token(tmp_path):
                           capture_output=True, text=True, timeout=60)
     assert done.returncode == 2
     assert done.stderr.strip().count("\n") == 0 and "--token-file" in done.stderr
+
+
+class ShortReportingOpener(CountingOpener):
+    """A board whose STATUS reports a shorted state (``short=0``), as boards with a
+    ``short`` relay do: the reply is re-framed with the field added."""
+
+    def __call__(self, device):
+        from nullsteer.protocol import wire
+
+        ctl = super().__call__(device)
+        link = ctl.link
+        read = link.read_line
+
+        def read_line(timeout_s):
+            line = read(timeout_s)
+            if line is None:
+                return None
+            frame = wire.decode_reply(line)
+            if frame.verb == "OK" and "boots" in frame.fields and "short" not in frame.fields:
+                return wire.encode(frame.seq, "OK", tuple(frame.fields.items()) + (("short", 0),))
+            return line
+
+        link.read_line = read_line
+        return ctl
+
+
+def test_short_is_shown_only_when_the_board_reports_it(tmp_path):
+    opener = ShortReportingOpener()
+    desk, server = serve(station_file(tmp_path), opener)
+    try:
+        client = Client(server)
+        snap = client.get(DEV)[1]
+        assert snap["short"] is False
+        sent = len(opener.written)
+        status, out = client.post(DEV + "/set", {"short": True})
+        # this host's controller has no shorted state yet: refused before sending
+        from nullsteer.board.controller import Controller
+        import inspect
+
+        if "short" not in inspect.signature(Controller.set_state).parameters:
+            assert status == 400 and "short" in out["error"]
+            assert opener.written[sent:] == []
+    finally:
+        stop(desk, server)
+
+
+def test_pattern_svg_puts_the_null_mark_on_the_compass_bearing():
+    import numpy as np
+
+    from nullsteer.web.pattern import RADIUS, SIZE, PatternCut, pattern_svg
+
+    az = np.arange(0.0, 360.0, 2.0)
+    # a made-up cardioid 1 + cos(az - 270): peak toward 270 (west), null toward 90 (east)
+    now = 10 * np.log10(np.maximum(1e-6, (1 + np.cos(np.radians(az - 270))) / 2))
+    cut = PatternCut(az, now, now[::-1], 1.83e6, 35.0, 900.0, "A")
+    assert cut.summary()["null_bearing_deg"] == 90.0
+    svg = ET.fromstring(pattern_svg(cut, 90.0))
+    ns = "{http://www.w3.org/2000/svg}"
+    dot = next(e for e in svg.iter(ns + "circle") if e.get("class") == "nulldot")
+    # compass: north up, clockwise, so east is to the right of the centre
+    assert float(dot.get("cx")) == pytest.approx(SIZE / 2 + RADIUS, abs=0.1)
+    assert float(dot.get("cy")) == pytest.approx(SIZE / 2, abs=0.1)

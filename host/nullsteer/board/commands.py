@@ -101,10 +101,15 @@ def send_state(ctl: Controller, fed_end: FedEnd, mask: int, open_: bool,
     to a controller that knows it: older hosts refuse it here, sending nothing)."""
     if short is None:
         return ctl.set_state(fed_end, mask, open_)
+    check_short(ctl, name)
     setter: Any = ctl.set_state
-    if "short" not in inspect.signature(setter).parameters:
-        raise ConfigError(name("short"), "this host cannot set the shorted state yet")
     return setter(fed_end, mask, open_, short=short)  # type: ignore[no-any-return]
+
+
+def check_short(ctl: Controller, name: KeyNamer = cli_name) -> None:
+    """Refuse the shorted state on a host whose controller does not know it."""
+    if "short" not in inspect.signature(ctl.set_state).parameters:
+        raise ConfigError(name("short"), "this host cannot set the shorted state yet")
 
 
 def apply_wish(ctl: Controller, wish: Wish, end_a_bearing_deg: float | None,
@@ -117,6 +122,8 @@ def apply_wish(ctl: Controller, wish: Wish, end_a_bearing_deg: float | None,
         raise ConfigError(name("ohms"), "give one of mask, ohms or open")
     if wish.fed_end is not None and wish.null_bearing_deg is not None:
         raise ConfigError(name("null_bearing"), "give either a fed end or a null bearing")
+    if wish.short is not None:
+        check_short(ctl, name)
     if wish.mask is not None and wish.mask < 0:
         raise ConfigError(name("mask"), f"must be >= 0, got {wish.mask}")
     notes: list[str] = []
