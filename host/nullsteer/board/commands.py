@@ -124,8 +124,11 @@ def apply_wish(ctl: Controller, wish: Wish, end_a_bearing_deg: float | None,
         raise ConfigError(name("null_bearing"), "give either a fed end or a null bearing")
     if wish.short is not None:
         check_short(ctl, name)
-    if wish.mask is not None and wish.mask < 0:
-        raise ConfigError(name("mask"), f"must be >= 0, got {wish.mask}")
+    if wish.mask is not None:
+        info = ctl.info()  # cached after the first request: nothing sent for a bad mask
+        if not 0 <= wish.mask <= info.max_mask:
+            raise ConfigError(name("mask"), f"{wish.mask} is outside 0..{info.max_mask} "
+                                            f"for this board's {info.bits} ladder relays")
     notes: list[str] = []
     extra: dict[str, Any] = {}
     end = wish.fed_end

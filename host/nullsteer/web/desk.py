@@ -405,15 +405,8 @@ class Desk:
         if wish.short is not None and not dd.has_short:
             raise ConfigError("short", "this board reports no shorted state")
 
-        def job(ctl: Controller) -> Outcome:
-            if wish.mask is not None:  # checked here too, before anything is sent
-                info = ctl.info()
-                if not 0 <= wish.mask <= info.max_mask:
-                    raise ConfigError("mask", f"{wish.mask} is outside 0..{info.max_mask} "
-                                              f"for this board's {info.bits} ladder relays")
-            return commands.apply_wish(ctl, wish, self.end_a, _api_name)
-
-        return self._run(dev_id, job)
+        return self._run(dev_id, lambda ctl: commands.apply_wish(ctl, wish, self.end_a,
+                                                                 _api_name))
 
     # -- pattern and schedule ---------------------------------------------------------
     def model(self, freq_hz: float) -> Any:
