@@ -7,7 +7,7 @@ STUBS  := .stubs
 STUBS_STAMP := $(STUBS)/.installed-stamp
 DEMO_OUT ?= out/demo
 
-.PHONY: all venv broker stubs typecheck test demo bench attack clean
+.PHONY: all venv broker browser stubs typecheck test demo bench attack clean
 
 all: test
 
@@ -29,6 +29,19 @@ broker:
 	  echo "mosquitto is not installed: install it (e.g. 'sudo apt-get install mosquitto') and rerun"; exit 1; \
 	fi
 
+# The control page's browser test drives Debian's headless Chromium through its chromedriver
+# (Selenium, from the dev extra). apt may be busy with another install: wait for its lock.
+browser:
+	@if [ -x /usr/bin/chromium ] && [ -x /usr/bin/chromedriver ]; then :; \
+	elif [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then \
+	  echo "installing chromium and chromium-driver (apt-get)"; \
+	  apt-get -o DPkg::Lock::Timeout=600 update -qq && \
+	  DEBIAN_FRONTEND=noninteractive apt-get -o DPkg::Lock::Timeout=600 install -y -qq \
+	    chromium chromium-driver >/dev/null; \
+	else \
+	  echo "chromium is not installed: install it (e.g. 'sudo apt-get install chromium chromium-driver') and rerun"; exit 1; \
+	fi
+
 # MicroPython stubs live in a folder of their own: they shadow time, socket... in a venv.
 $(STUBS_STAMP): | $(STAMP)
 	$(BIN)/python -m pip install -q --target $(STUBS) micropython-rp2-stubs
@@ -40,7 +53,7 @@ typecheck: venv stubs
 	$(BIN)/python -m mypy
 	bash firmware/typecheck.sh $(BIN)/python $(STUBS)
 
-test: venv broker typecheck
+test: venv broker browser typecheck
 	$(BIN)/python -m pytest -q
 
 demo: venv

@@ -13,11 +13,17 @@ topic                direction payload                                          
 ``T ohms``           out       the termination in ohms, ``%.1f``                 yes
 ``T open``           out       ``ON`` (termination disconnected) / ``OFF``       yes
 ``T preset``         out       the preset matching the state, or ``custom``      yes
+``T bearing``        out       the fed end's null bearing, degrees (``%d``)       yes
+``T short``          out       ``ON``/``OFF`` (boards reporting a shorted state) yes
+``T diag``           out       JSON ``{"boots","fw","up_s"}``, every minute      yes
+``T page``           in        the control page's URL (retained, from the host)  --
 ``T end/set``        in        ``A``/``B`` or an end label                       no
 ``T bearing/set``    in        wanted null bearing, degrees -360..360 (nearest)  no
 ``T ohms/set``       in        ohms (nearest ladder setting by ratio; closes)    no
 ``T open/set``       in        ``ON``/``OFF``                                    no
 ``T preset/set``     in        a preset name from the board config               no
+``T flip/set``       in        ``PRESS``: swap fed and terminated ends           no
+``T short/set``      in        ``ON``/``OFF`` (boards reporting a shorted state) no
 ``T log``            out       one line of text per refused hub command          no
 ``<prefix>/status``  in        the hub's birth ``online``: republish discovery   --
 ==================== ========= ================================================= ======
@@ -49,8 +55,11 @@ topics are read with the codec's strict decimal reader: ``nan``/``inf`` are refu
 
 Discovery (decided: the board publishes it). The board has its ladder table, its presets
 and its state, so a home-automation hub that follows the MQTT discovery convention sees
-and drives the antenna with the host switched off. Configs are published retained after
-every connect and again when the hub announces ``online`` on ``<prefix>/status``.
+and drives the antenna with the host switched off. One device-based config (see
+``discovery.py``) is published retained after every connect, again a random 0.5-5 s
+after the hub announces ``online`` on ``<prefix>/status``, and when the control page's
+URL on ``T page`` changes; the per-entity configs of earlier firmware are retracted
+(empty retained payloads) at the same time.
 """
 
 try:
@@ -76,11 +85,13 @@ def _config_error(key: str, message: str) -> Exception:
 MQTT_KEYS = ("host", "port", "user", "password", "tls", "ca_file", "server_hostname",
              "base", "id", "keepalive_s", "discovery", "discovery_prefix", "name",
              "key_hex", "hub", "end_labels", "end_a_bearing_deg", "presets",
-             "wifi", "backoff_s", "backoff_max_s", "log", "insecure")
+             "wifi", "backoff_s", "backoff_max_s", "log", "insecure", "rediscover_max_s")
 PRESET_KEYS = ("end", "mask", "ohms", "open")
-HUB_TOPICS = ("end", "bearing", "ohms", "open", "preset")
+HUB_TOPICS = ("end", "bearing", "ohms", "open", "preset", "flip", "short")
 CUSTOM = "custom"
 CTR_RESERVE = 64  # frame counters reserved in ns_ctr.txt per flash write
+DIAG_MS = 60000       # diagnostics (boots, firmware, uptime) are republished this often
+PAGE_URL_MAX = 200
 REPLY_CACHE = 4
 
 
@@ -212,7 +223,28 @@ def parse_mqtt(obj: object, bits: int = 16) -> dict:
     m["wifi"] = wifi
     m["backoff_s"] = _num(obj, "backoff_s", 0.25, 0.01, 60)
     m["backoff_max_s"] = _num(obj, "backoff_max_s", 4.0, m["backoff_s"], 3600)
+    m["rediscover_max_s"] = _num(obj, "rediscover_max_s", 5.0, 0.5, 60)
     return m
+
+
+def random_delay_ms(max_s: float, min_s: float = 0.5) -> int:
+    """A random wait in ``min_s``..``max_s`` (ms), from the board's random source."""
+    import os
+    spread = max(0.0, max_s - min_s)
+    return int((min_s + spread * os.urandom(1)[0] / 255.0) * 1000)
+
+
+def page_url_ok(text: str) -> bool:
+    """An empty string (no page) or an http(s) URL of printable ASCII, not too long."""
+    if text == "":
+        return True
+    if len(text) > PAGE_URL_MAX or not (text.startswith("http://") or
+                                        text.startswith("https://")):
+        return False
+    for ch in text:
+        if ord(ch) <= 0x20 or ord(ch) > 0x7E or ch in "\"<>":
+            return False
+    return True
 
 
 def null_bearing(end: str, end_a_bearing_deg: float) -> float:
@@ -310,6 +342,10 @@ class BoardMqtt:
         self.info = {}  # type: dict
         self.table = []  # type: list
         self.has_open = False
+        self.has_short = False
+        self.page_url = ""
+        self.discovery_due_ms = None  # type: Any
+        self.diag_next_ms = clock.ticks_ms()
         self.load_board_facts()
 
     def log(self, text: str) -> None:
@@ -327,11 +363,12 @@ class BoardMqtt:
         if self.m["hub"]:
             subs += [(self.t + name + "/set", 1) for name in HUB_TOPICS]
         if self.m["discovery"]:
-            subs.append((self.status_topic, 1))
+            subs += [(self.status_topic, 1), (self.t + "page", 1)]
         c.subscribe(subs)  # every connect: the session is clean
         c.publish(self.t + "avail", b"online", True, 1)
         self.published = None
         self.publish_state()
+        self.publish_diag()
         if self.m["discovery"]:
             self.publish_discovery()
         self.connects += 1
@@ -362,6 +399,7 @@ class BoardMqtt:
         try:
             self.client.poll(timeout_ms)
             self.publish_state()
+            self.timers()
         except OSError as exc:
             self.log("connection lost: %s" % (exc,))
             self.client.close()
@@ -405,6 +443,7 @@ class BoardMqtt:
                 table.append((int(mask), float(ohms)))
         self.table = table
         self.has_open = "open" in self.info.get("roles", "").split(",")
+        self.has_short = "short" in self.ask("STATUS")
 
     # --- outgoing --------------------------------------------------------------------
     def preset_of(self, end: str, mask: int, open_: bool) -> str:
@@ -450,17 +489,44 @@ class BoardMqtt:
                 c.publish(self.t + "ohms", f["ohms"], True, 1)
             c.publish(self.t + "open", "ON" if open_ else "OFF", True, 1)
             c.publish(self.t + "preset", preset, True, 1)
+            if self.m["bearing"] is not None:
+                c.publish(self.t + "bearing", "%d" % round(null_bearing(end, self.m["bearing"])),
+                          True, 1)
+            if "short" in f:
+                c.publish(self.t + "short", "ON" if f["short"] == "1" else "OFF", True, 1)
         self.published = key
+
+    def publish_diag(self) -> None:
+        """Boots, firmware and uptime for the hub's diagnostic sensors (retained)."""
+        f = self.ask("STATUS")
+        if f:
+            doc = {"boots": int(f.get("boots", "0")), "fw": f.get("fw", "?"),
+                   "up_s": int(f.get("up_s", "0"))}
+            self.client.publish(self.t + "diag", json.dumps(doc), True, 1)
+        self.diag_next_ms = self.clock.ticks_ms() + DIAG_MS
+
+    def timers(self) -> None:
+        """Diagnostics every minute; discovery when its random delay has passed."""
+        now = self.clock.ticks_ms()
+        if self.clock.ticks_diff(now, self.diag_next_ms) >= 0:
+            self.publish_diag()
+        due = self.discovery_due_ms
+        if due is not None and self.clock.ticks_diff(now, due) >= 0:
+            self.discovery_due_ms = None
+            self.publish_discovery()
 
     def publish_discovery(self) -> None:
         import discovery  # type: ignore[import-not-found]  # host/nullsteer/protocol/discovery.py
-        items = discovery.entity_configs(
-            self.m["discovery_prefix"], self.m["base"], self.m["id"],
+        prefix = self.m["discovery_prefix"]
+        for topic in discovery.legacy_topics(prefix, self.m["id"]):
+            self.client.publish(topic, b"", True, 1)
+        topic, payload = discovery.device_config(
+            prefix, self.m["base"], self.m["id"],
             self.m["name"] or self.m["id"], self.info.get("fw", "?"),
             self.info.get("board", "?"), [self.m["labels"]["A"], self.m["labels"]["B"]],
-            discovery.ohms_span(self.table), sorted(self.m["presets"]), self.has_open)
-        for topic, payload in items:
-            self.client.publish(topic, json.dumps(payload), True, 1)
+            discovery.ohms_span(self.table), sorted(self.m["presets"]), self.has_open,
+            self.has_short, self.m["bearing"] is not None, self.page_url or None)
+        self.client.publish(topic, json.dumps(payload), True, 1)
 
     # --- incoming --------------------------------------------------------------------
     def on_message(self, topic: str, payload: bytes, retained: bool) -> None:
@@ -469,7 +535,17 @@ class BoardMqtt:
                 self.client.publish(self.t + "rep", self.host_frame(payload), False, 1)
         elif topic == self.status_topic:
             if payload == b"online" and self.m["discovery"]:
-                self.publish_discovery()
+                self.discovery_due_ms = self.clock.ticks_ms() + random_delay_ms(
+                    self.m["rediscover_max_s"])
+        elif topic == self.t + "page":
+            try:
+                url = payload.decode().strip()
+            except UnicodeError:
+                url = None
+            if url is not None and page_url_ok(url) and url != self.page_url:
+                self.page_url = url
+                if self.m["discovery"]:
+                    self.publish_discovery()
         elif self.m["hub"] and topic.startswith(self.t) and topic.endswith("/set"):
             if not retained:
                 self.hub_command(topic[len(self.t):-4], payload)
@@ -543,6 +619,12 @@ class BoardMqtt:
                 fields.append(("mask", s.mask if p["mask"] is None else p["mask"]))
         elif name == "preset" and text == CUSTOM:
             return
+        elif name == "flip" and text == "PRESS":
+            fields = [("end", "B" if s.end == "A" else "A"), ("mask", s.mask),
+                      ("open", s.open_)]
+        elif name == "short" and self.has_short and text in ("ON", "OFF"):
+            fields = [("end", s.end), ("mask", s.mask), ("open", s.open_),
+                      ("short", text == "ON")]
         if fields is None:
             self.client.publish(self.t + "log", "refused %s/set %s" % (name, text[:40]))
             return

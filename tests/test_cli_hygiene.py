@@ -237,3 +237,10 @@ def test_bad_board_config_is_exit_2_naming_the_key(name, change, key, tmp_path, 
     assert code == 2, err
     assert f"board.{key}:" in err, err
     assert_clean(code, out, err, json_out=False)
+
+
+def test_set_outside_the_table_warns(capsys):
+    # the demo board's lowest setting is about 1001 ohm (examples/board-sim.json)
+    code, out, err = run_cli(["set", "--link", "loop://", "--ohms", "800", "--json"], capsys)
+    assert code == 0 and "below the ladder's lowest setting" in err
+    assert json.loads(out)["warnings"]

@@ -18,7 +18,7 @@ FIRMWARE = ROOT / "firmware"
 
 #: Lowest first. ``errors`` is the package root's one shared module.
 LAYERS = ["errors", "station", "antenna", "protocol", "ladder", "sim", "board", "reception",
-          "schedule", "report", "cli"]
+          "schedule", "report", "web", "cli"]
 
 
 def _imports(path: Path, prefix: str) -> set[str]:

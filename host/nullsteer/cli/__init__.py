@@ -29,6 +29,7 @@ COMMAND_MODULES = (
     "nullsteer.cli.sun",
     "nullsteer.cli.schedule",
     "nullsteer.cli.service",
+    "nullsteer.cli.serve",
     "nullsteer.cli.autonull",
     "nullsteer.cli.noise",
     "nullsteer.cli.plot",

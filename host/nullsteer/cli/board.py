@@ -7,15 +7,14 @@ import signal
 import sys
 import threading
 
-from nullsteer.protocol import wire
-from nullsteer.station.bearing import fed_end_for_null, null_bearing_deg
+from nullsteer.board import commands
+from nullsteer.board.commands import Wish
+from nullsteer.station.bearing import null_bearing_deg
 from nullsteer.cli.common import add_board_options, add_json_flag, connect, positive_float, print_json
 from nullsteer.station.config import get_float, load_station
+from nullsteer.station.presets import Preset, parse_presets
 from nullsteer.board.controller import BoardStatus, Controller, FedEnd
 from nullsteer.errors import ConfigError
-
-#: A wanted ohms value further than this ratio from every setting is refused.
-MAX_OHMS_RATIO = 2.0
 
 
 def _mask(text: str) -> int:
@@ -53,43 +52,68 @@ def end_a_bearing(config_path: str | None, flag: str) -> float:
                      minimum=0.0, maximum=360.0)
 
 
-def describe(status: BoardStatus, end_a_deg: float | None = None) -> str:
-    """One human line for a board state."""
+def describe(status: BoardStatus, end_a_deg: float | None = None,
+             presets: list[str] | None = None) -> str:
+    """One human line for a board state (with the presets it matches, when known)."""
     s = status.state
     term = "open (no termination)" if s.open else (
         f"{s.ohms:.1f} ohm (mask {s.mask})" if s.ohms is not None else f"mask {s.mask}")
     text = f"fed end {s.fed_end.value}, termination {term}"
     if end_a_deg is not None and not s.open:
         text += f", null toward {null_bearing_deg(s.fed_end.value, end_a_deg):.0f} deg"
+    if presets is not None:
+        text += f"; preset {' / '.join(presets)}" if presets else "; no preset"
     if status.changed is not None:
         text += "" if status.changed else " (already so: no relay moved)"
     return text
 
 
-def _print_status(args: argparse.Namespace, status: BoardStatus, extra: dict | None = None) -> None:
+def _station_presets(args: argparse.Namespace) -> dict[str, Preset]:
+    """The station file's presets (empty without --config)."""
+    if not getattr(args, "config", None):
+        return {}
+    return parse_presets(load_station(args.config))
+
+
+def _presets_now(ctl: Controller, args: argparse.Namespace, state) -> list[str] | None:
+    """Presets the board is in now; None without a station file to say."""
+    presets = _station_presets(args)
+    if not presets:
+        return None
+    return commands.presets_now(ctl, presets, state)
+
+
+def _print_status(args: argparse.Namespace, status: BoardStatus, extra: dict | None = None,
+                  notes: list[str] | None = None, presets: list[str] | None = None) -> None:
     end_a = None
     if getattr(args, "config", None):
         try:
             end_a = end_a_bearing(args.config, "--config")
         except ConfigError:
             end_a = None
+    for warning in (extra or {}).get("warnings", []):
+        sys.stderr.write(f"nullsteer: warning: {warning}\n")
     if args.json:
         out = status.to_json()
         if end_a is not None and not status.state.open:
             out["null_bearing_deg"] = null_bearing_deg(status.state.fed_end.value, end_a)
+        if presets is not None:
+            out["presets"] = presets
         out.update(extra or {})
+        if notes:
+            out["note"] = "\n".join(notes)
         print_json(out)
     else:
-        for key, value in (extra or {}).items():
-            if key == "note":
-                print(value)
-        print(describe(status, end_a))
+        for line in notes or []:
+            print(line)
+        print(describe(status, end_a, presets))
 
 
 def run_status(args: argparse.Namespace) -> int:
     with connect(args) as ctl:
         status = ctl.status()
-    _print_status(args, status)
+        presets = _presets_now(ctl, args, status.state)
+    _print_status(args, status, presets=presets)
     return 0
 
 
@@ -98,12 +122,15 @@ def run_info(args: argparse.Namespace) -> int:
         info = ctl.info()
         table = ctl.table() if info.table_entries else []
         warning = ctl.firmware_mismatch()
+        presets = _presets_now(ctl, args, ctl.status().state) if args.config else None
     if warning:
         sys.stderr.write(f"nullsteer: warning: {warning}\n")
     if args.json:
         out = info.to_json()
         out["firmware_warning"] = warning
         out["table"] = [{"mask": m, "ohms": r} for m, r in table]
+        if presets is not None:
+            out["presets"] = presets
         print_json(out)
     else:
         print(f"board {info.board}, firmware {info.firmware}, protocol {info.protocol}")
@@ -112,77 +139,45 @@ def run_info(args: argparse.Namespace) -> int:
             print(f"ladder table: {len(table)} settings, {table[0][1]:.1f} .. {table[-1][1]:.1f} ohm")
         else:
             print("no ladder table loaded (settings by mask only)")
+        if presets is not None:
+            print(f"preset in force: {' / '.join(presets) if presets else 'none'}")
     return 0
 
 
-def choose_mask_for_ohms(ctl: Controller, ohms: float) -> tuple[int, float, float]:
-    """(mask, setting ohms, error %) of the board's setting nearest ``ohms`` by ratio."""
-    table = ctl.table()
-    if not table:
-        raise ConfigError("--ohms", "the board has no ladder table; write one with "
-                                    "'nullsteer ladder --board-config FILE' and reload the board")
-    lo, hi = table[0][1], table[-1][1]
-    if not lo / MAX_OHMS_RATIO <= ohms <= hi * MAX_OHMS_RATIO:
-        raise ConfigError("--ohms", f"{ohms:g} ohm is far outside the ladder's {lo:.0f}..{hi:.0f} ohm")
-    found = wire.nearest_by_ratio(table, ohms)
-    assert found is not None
-    return found
-
-
-def outside_table_warning(table: list[tuple[int, float]], ohms: float) -> str | None:
-    """A warning when ``ohms`` lies beyond the table's ends (the board then takes the end)."""
-    lo, hi = table[0][1], table[-1][1]
-    if ohms < lo:
-        return f"--ohms {ohms:g} is below the ladder's lowest setting {lo:.1f} ohm: set to that"
-    if ohms > hi:
-        return f"--ohms {ohms:g} is above the ladder's highest setting {hi:.1f} ohm: set to that"
-    return None
-
-
 def run_set(args: argparse.Namespace) -> int:
-    if args.mask is None and args.ohms is None and not args.open and args.fed_end is None \
-            and args.null_bearing is None:
-        raise ConfigError("set", "say what to set: --fed-end/--null-bearing and/or --mask/--ohms/--open")
-    if args.ohms is not None and not args.ohms > 0:
-        raise ConfigError("--ohms", f"must be > 0, got {args.ohms:g}")
-    wanted_end = args.fed_end
-    note = None
-    if args.null_bearing is not None:
-        end_a = end_a_bearing(args.config, "--null-bearing")
-        end, miss = fed_end_for_null(args.null_bearing, end_a)
-        wanted_end = end
-        note = (f"null toward {args.null_bearing:.0f} deg: feeding end {end} "
-                f"(null at {null_bearing_deg(end, end_a):.0f} deg, {miss:.0f} deg off)")
-    extra: dict = {}
+    short = True if getattr(args, "short", False) else None
+    wish = Wish(fed_end=args.fed_end, null_bearing_deg=args.null_bearing, mask=args.mask,
+                ohms=args.ohms, open=args.open, short=short)
+    if args.preset is not None:
+        if not wish.is_empty():
+            raise ConfigError("--preset", "a preset is a whole state: give it alone "
+                                          "(with --freq for its band)")
+        if not args.config:
+            raise ConfigError("--preset", "needs --config (the station file's [presets])")
+        preset = commands.find_preset(_station_presets(args), args.preset)
+    elif args.freq is not None:
+        raise ConfigError("--freq", "is used with --preset only")
+    elif wish.is_empty():
+        raise ConfigError("set", "say what to set: --preset, --fed-end/--null-bearing "
+                                 "and/or --mask/--ohms/--open")
+    end_a = (end_a_bearing(args.config, "--null-bearing")
+             if args.null_bearing is not None else None)
     with connect(args) as ctl:
-        now = ctl.status().state
-        end = wanted_end or now.fed_end
-        mask, open_ = now.mask, now.open
-        if args.mask is not None:
-            mask, open_ = args.mask, False
-        if args.ohms is not None:
-            mask, r_set, err = choose_mask_for_ohms(ctl, args.ohms)
-            open_ = False
-            extra = {"wanted_ohms": args.ohms, "error_pct": round(err, 2)}
-            outside = outside_table_warning(ctl.table(), args.ohms)
-            if outside:
-                sys.stderr.write(f"nullsteer: warning: {outside}\n")
-                extra["warnings"] = [outside]
-            note = ((note + "\n") if note else "") + (
-                f"nearest setting to {args.ohms:g} ohm: mask {mask} = {r_set:.1f} ohm ({err:+.1f} %)")
-        if args.open:
-            open_ = True
-        status = ctl.set_state(end, mask, open_)
-    if note:
-        extra["note"] = note
-    _print_status(args, status, extra)
+        if args.preset is not None:
+            done = commands.apply_preset(ctl, preset, None if args.freq is None
+                                         else args.freq * 1e6)
+        else:
+            done = commands.apply_wish(ctl, wish, end_a)
+        presets = _presets_now(ctl, args, done.status.state)
+    _print_status(args, done.status, done.extra, done.notes, presets)
     return 0
 
 
 def run_flip(args: argparse.Namespace) -> int:
     with connect(args) as ctl:
         status = ctl.flip()
-    _print_status(args, status)
+        presets = _presets_now(ctl, args, status.state)
+    _print_status(args, status, presets=presets)
     return 0
 
 
@@ -272,6 +267,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     term.add_argument("--ohms", type=positive_float("--ohms"),
                       help="wanted termination; the nearest ladder setting by ratio is used")
     term.add_argument("--open", action="store_true", help="disconnect the termination (no rear null)")
+    p.add_argument("--preset", metavar="NAME", help="a preset of the station file (needs --config)")
+    p.add_argument("--freq", type=positive_float("--freq"), metavar="MHZ",
+                   help="with --preset: the receive frequency choosing its band setting")
     add_json_flag(p)
     p.set_defaults(func=run_set)
 

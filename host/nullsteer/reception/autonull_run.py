@@ -308,3 +308,17 @@ def _open_sim(board_config: Path) -> Any:
 
 def noise_category_names() -> list[str]:
     return [c.value for c in NoiseCategory]
+
+
+def station_sim_meter(station: Station, solution: Any, controller: Any, freq_hz: float,
+                      board_config: str | Path | None, dwell_s: float = 0.05,
+                      reads: int = 3) -> Meter:
+    """A meter reading the station's virtual receiver at ``controller``'s actual relays
+    (the ``sim`` source, as ``nullsteer autonull --source sim`` and the control page
+    use it)."""
+    from nullsteer.reception.virtual import SimSource
+
+    receiver = build_virtual_receiver(station, solution,
+                                      board_termination(board_config, controller.table()))
+    return Meter(SimSource(receiver, freq_hz, board_state_reader(controller)),
+                 dwell_s=dwell_s, reads=reads, interval_s=0.02)

@@ -28,10 +28,9 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass
 
-from nullsteer.protocol import wire
-from nullsteer.station.bearing import FedEnd
 from nullsteer.station.config import Station
-from nullsteer.board.controller import BoardStatus, Controller
+from nullsteer.board.commands import target_fields
+from nullsteer.board.controller import Controller
 from nullsteer.board.devices import Device, parse_devices
 from nullsteer.errors import BoardError, ConfigError, LinkError
 from nullsteer.board.links import open_link
@@ -112,25 +111,6 @@ class VirtualClock:
             self._jumped += dt.timedelta(seconds=left_s)
             return
         self._sleep(min(left_s / self.speed, limit_s))
-
-
-def target_fields(target: Target, status: BoardStatus | None,
-                  table: list[tuple[int, float]]) -> tuple[FedEnd, int, bool, str]:
-    """(fed end, mask, open, note) for ``target`` on a board with ``table``.
-
-    ``status`` is the board's present state (needed when the target keeps the mask:
-    ``open`` presets, or no ohms). Raises ConfigError when ohms are asked of a board
-    without a ladder table.
-    """
-    fed_end = FedEnd(target.fed_end.value)
-    if target.ohms is not None and not target.open:
-        best = wire.nearest_by_ratio(table, target.ohms)
-        if best is None:
-            raise ConfigError("presets", "the board has no ladder table for an ohms preset")
-        mask, ohms, err = best
-        return fed_end, mask, False, f"mask {mask} = {ohms:.1f} ohm ({err:+.1f} %)"
-    mask = status.state.mask if status is not None else 0
-    return fed_end, mask, target.open, f"mask {mask} kept"
 
 
 class DeviceRunner:

@@ -39,6 +39,7 @@ Keys of one preset:
 from __future__ import annotations
 
 from dataclasses import dataclass
+from collections.abc import Callable
 from typing import Any
 
 from nullsteer.station.bearing import FedEnd as End
@@ -271,3 +272,39 @@ def resolve_target(preset: Preset, freq_hz: float | None = None) -> Target:
             if band.covers(freq_hz):
                 return Target(preset.fed_end, band.ohms, band.open)
     return Target(preset.fed_end, preset.ohms, preset.open)
+
+
+def preset_targets(preset: Preset) -> list[Target]:
+    """Every absolute state ``preset`` can ask for: its default and each band override."""
+    out = [Target(preset.fed_end, preset.ohms, preset.open)]
+    out += [Target(preset.fed_end, b.ohms, b.open) for b in preset.bands]
+    return out
+
+
+def presets_in_state(presets: dict[str, Preset], fed_end: str, mask: int, open_: bool,
+                     mask_for_ohms: Callable[[float], int | None]) -> list[str]:
+    """Names (sorted) of the presets whose state the board is in now.
+
+    Parameters
+    ----------
+    presets : dict
+        Parsed presets by name.
+    fed_end, mask, open_ : str, int, bool
+        The board's reported state.
+    mask_for_ohms : callable
+        The board's setting for a wanted resistance (its nearest-by-ratio rule), or None
+        when the board has no ladder table.
+
+    An open target matches whatever mask the ladder holds (the termination is
+    disconnected); an ohms target matches the setting the board would choose for it.
+    A preset matches if its default or any of its band overrides does.
+    """
+    found = []
+    for name in sorted(presets):
+        for t in preset_targets(presets[name]):
+            if t.fed_end.value != fed_end or t.open != open_:
+                continue
+            if t.open or (t.ohms is not None and mask_for_ohms(t.ohms) == mask):
+                found.append(name)
+                break
+    return found

@@ -234,6 +234,7 @@ class MqttLink:
                     properties: Any) -> None:
         with self._cv:
             self.published += 1
+            self._cv.notify_all()
 
     # --- life cycle ------------------------------------------------------------------
     def start(self) -> MqttLink:
@@ -295,6 +296,22 @@ class MqttLink:
     @property
     def connected(self) -> bool:
         return self._connected
+
+    def publish_page_url(self, url: str, timeout_s: float = 2.0) -> bool:
+        """Tell the board where the control page is (retained on ``<base>/<id>/page``; an
+        empty ``url`` withdraws it); the board puts it in its hub discovery. True once
+        the broker has it."""
+        with self._cv:
+            before = self.published
+        self._client.publish(self.topic + "page", url.encode(), qos=1, retain=True)
+        deadline = time.monotonic() + timeout_s
+        with self._cv:
+            while self.published == before:
+                left = deadline - time.monotonic()
+                if left <= 0:
+                    return False
+                self._cv.wait(left)
+        return True
 
     # --- Link protocol ---------------------------------------------------------------
     def write_line(self, line: bytes) -> None:
