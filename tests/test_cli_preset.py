@@ -27,18 +27,18 @@ def run(capsys, *args: str) -> tuple[int, str, str]:
 
 def test_set_preset_then_status_and_info_name_it(tmp_path, capsys):
     station = str(station_file(tmp_path))
-    code, out, _ = run(capsys, "set", "--config", station, "--preset", "dx-east", "--json")
+    code, out, _ = run(capsys, "set", "--config", station, "--preset", "dx-west", "--json")
     doc = json.loads(out)
     assert code == 0 and (doc["fed_end"], doc["mask"], doc["open"]) == ("B", nearest(1300.0), False)
-    assert doc["presets"] == ["dx-east"]
+    assert doc["presets"] == ["dx-west"]
     code, out, _ = run(capsys, "status", "--config", station)
-    assert code == 0 and "preset dx-east" in out and "null toward 65 deg" in out
+    assert code == 0 and "preset dx-west" in out and "null toward 65 deg" in out
     code, out, _ = run(capsys, "info", "--config", station)
-    assert code == 0 and "preset in force: dx-east" in out
+    assert code == 0 and "preset in force: dx-west" in out
     code, out, _ = run(capsys, "flip", "--config", station, "--json")
-    assert json.loads(out)["presets"] == ["dx-west"]  # dx-west = { fed_end = "A", ohms = 1300.0 }
-    code, out, _ = run(capsys, "set", "--config", station, "--preset", "figure8", "--json")
-    assert json.loads(out)["open"] is True and json.loads(out)["presets"] == ["figure8"]
+    assert json.loads(out)["presets"] == ["dx-east"]  # dx-east = { fed_end = "A", ohms = 1300.0 }
+    code, out, _ = run(capsys, "set", "--config", station, "--preset", "no-null", "--json")
+    assert json.loads(out)["open"] is True and json.loads(out)["presets"] == ["no-null"]
 
 
 def test_band_preset_takes_its_band_setting(tmp_path, capsys):
@@ -58,7 +58,7 @@ def test_bad_preset_requests_exit_2_and_move_nothing(tmp_path, capsys):
     station = str(station_file(tmp_path))
     _, before, _ = run(capsys, "status", "--config", station, "--json")
     for args, word in ((["--preset", "nope"], "no preset 'nope'"),
-                       (["--preset", "dx-east", "--ohms", "900"], "--preset"),
+                       (["--preset", "dx-west", "--ohms", "900"], "--preset"),
                        (["--freq", "1.83", "--fed-end", "A"], "--freq")):
         code, out, err = run(capsys, "set", "--config", station, *args)
         assert code == 2 and word in err and err.count("\n") == 1

@@ -52,11 +52,11 @@ def test_flip_preset_ohms_bearing_open(page):
     assert out["device"]["null_bearing_deg"] == pytest.approx(END_A_DEG)
     assert out["device"]["mask"] == snap["mask"]  # a flip keeps the termination
 
-    status, out = client.post(DEV + "/preset", {"name": "dx-west"})
-    mask, _ = nearest_by_ratio(1300.0)  # dx-west = { fed_end = "A", ohms = 1300.0 }
+    status, out = client.post(DEV + "/preset", {"name": "dx-east"})
+    mask, _ = nearest_by_ratio(1300.0)  # dx-east = { fed_end = "A", ohms = 1300.0 }
     assert status == 200
     assert (out["device"]["fed_end"], out["device"]["mask"], out["device"]["open"]) == ("A", mask, False)
-    assert out["device"]["presets"] == ["dx-west"]
+    assert out["device"]["presets"] == ["dx-east"]
 
     status, out = client.post(DEV + "/set", {"ohms": 1500})
     mask, r = nearest_by_ratio(1500.0)
@@ -92,7 +92,7 @@ BAD = [  # (path, body, status, key named in the reason)
     ("/set", {"volume": 3}, 400, "volume"),
     ("/set", {}, 400, "set"),
     ("/preset", {"name": "nope"}, 400, "name"),
-    ("/preset", {"name": "dx-east", "freq_mhz": 99}, 400, "freq_mhz"),
+    ("/preset", {"name": "dx-west", "freq_mhz": 99}, 400, "freq_mhz"),
     ("/flip", {"now": True}, 400, "now"),
     ("/autonull", {"freq_mhz": 0}, 400, "freq_mhz"),
     ("/autonull", {"freq_mhz": 1.83, "save_preset": "bad name!"}, 400, "save_preset"),
@@ -178,7 +178,7 @@ def test_schedule_shows_the_next_sunset_rule_as_astral_has_it(page):
     client, opener, desk, server = page
     status, out = client.get(DEV + "/schedule")
     assert status == 200 and out["next"]
-    west = next(a for a in out["next"] if a["preset"] == "dx-west")  # sunset -30 min at the site
+    west = next(a for a in out["next"] if a["preset"] == "dx-east")  # sunset -30 min at the site
     when = dt.datetime.fromisoformat(west["when"])
     # astral [reference library]: sunset at the site (examples/station.toml [site])
     obs = Observer(latitude=53.412, longitude=-7.930)

@@ -103,9 +103,9 @@ def test_flip_and_preset_change_the_page(browser, tmp_path):
         from selenium.webdriver.common.by import By
 
         west = browser.find_element(By.CSS_SELECTOR,
-                                    '[data-device="flag-ne"] [data-preset="dx-west"]')
+                                    '[data-device="flag-ne"] [data-preset="dx-east"]')
         west.click()
-        assert wait_text(browser, "preset-now", "dx-west") == "dx-west"
+        assert wait_text(browser, "preset-now", "dx-east") == "dx-east"
         assert wait_text(browser, "bearing", "245°") == "245°"
         assert west.get_attribute("aria-pressed") == "true"
         # a refused command shows its reason on the page

@@ -34,7 +34,7 @@ def station_file(folder: Path, link: str | None = None, state: Path | None = Non
         state = state or folder / "board-state"
         state.mkdir(exist_ok=True)
         link = f"loop://?board={BOARD}&state={state}"
-    text = re.sub(r'^link = "sim://".*$', f'link = "{link}"', text, flags=re.M)
+    text = re.sub(r'^link = "[^"]*".*$', f'link = "{link}"', text, count=1, flags=re.M)
     text = text.replace('board = "board-sim.json"', f'board = "{BOARD}"')
     path = folder / "station.toml"
     path.write_text(text)

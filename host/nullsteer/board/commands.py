@@ -161,13 +161,14 @@ def apply_wish(ctl: Controller, wish: Wish, end_a_bearing_deg: float | None,
     mask, open_ = now.mask, now.open
     if wish.mask is not None:
         mask, open_ = wish.mask, False
-    if mask_for is not None:
+    if mask_for is not None and wish.ohms is not None:
+        r_wanted = wish.ohms
         mask, r_set, err = mask_for
         open_ = False
         extra.update(wanted_ohms=wish.ohms, error_pct=round(err, 2))
         notes.append(f"nearest setting to {wish.ohms:g} ohm: mask {mask} = {r_set:.1f} ohm "
                      f"({err:+.1f} %)")
-        outside = outside_table_warning(ctl.table(), wish.ohms, name)
+        outside = outside_table_warning(ctl.table(), r_wanted, name)
         if outside:
             extra["warnings"] = [outside]
     if wish.open:

@@ -542,8 +542,8 @@ class Desk:
             run["error"] = f"internal error: {exc}"
         finally:
             dd.busy = None
+        self.refresh(dd)  # the board's state first, so a page reading on "done" sees it
         self.events.publish("autonull", {"device": dev_id, "kind": run["state"], "run": run})
-        self.refresh(dd)
 
 
 def _api_name(key: str) -> str:
