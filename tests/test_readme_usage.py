@@ -24,7 +24,7 @@ ROOT = Path(__file__).resolve().parents[1]
 #: Lines that talk to hardware this machine does not have (a USB serial adaptor).
 HARDWARE_ONLY = {"nullsteer status --link serial:///dev/ttyUSB0"}
 #: Commands that run until stopped: started, checked to say what the README says, stopped.
-LONG_RUNNING = {"sim": "link: "}
+LONG_RUNNING = {"sim": "link: ", "serve": "page: "}
 
 
 def usage_lines() -> list[str]:
@@ -82,8 +82,20 @@ def test_every_usage_line_runs(workdir, sim_url):
     ran = []
     for line in usage_lines():
         command = line.split()[1]
-        if line in HARDWARE_ONLY or command in LONG_RUNNING:
+        if line in HARDWARE_ONLY or command == "sim":
             continue  # sim: the fixture above ran it and read its "link: URL"
+        if command in LONG_RUNNING:
+            proc = subprocess.Popen(_argv(line, sim_url), cwd=workdir, env=env, text=True,
+                                    stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                                    stdin=subprocess.DEVNULL)
+            try:
+                first = proc.stdout.readline()  # the command says it is up
+                assert first.startswith(LONG_RUNNING[command]), f"{line}\n{first}"
+            finally:
+                proc.terminate()
+                proc.wait(timeout=30)
+            ran.append((line, first))
+            continue
         proc = subprocess.run(_argv(line, sim_url), cwd=workdir, env=env, capture_output=True,
                               text=True, timeout=300, stdin=subprocess.DEVNULL)
         assert proc.returncode == 0, f"{line}\nexit {proc.returncode}\n{proc.stderr[-2000:]}"
