@@ -89,3 +89,45 @@ def quasi_static_image_coefficient(ground: GroundSpec, freq_hz: float) -> comple
         return 1.0 + 0j
     eps = complex_permittivity(ground.permittivity, ground.conductivity_s_per_m, freq_hz)
     return complex((eps - 1.0) / (eps + 1.0))
+
+
+def is_air(ground: GroundSpec) -> bool:
+    """True for free space, or for a "real" ground with εr = 1 and σ = 0 (no interface)."""
+    return ground.kind is GroundKind.FREE or (
+        ground.kind is GroundKind.REAL and ground.permittivity == 1.0
+        and ground.conductivity_s_per_m == 0.0)
+
+
+def dwight_rod_ohm(conductivity_s_per_m: float, length_m: float, diameter_m: float) -> float:
+    """Resistance of one driven vertical rod to remote earth, ohms (inf for σ = 0).
+
+    Dwight, "Calculation of resistances to ground", AIEE Transactions 55 (1936):
+    R = ρ/(2πL)·(ln(4L/a) − 1), ρ = 1/σ the soil resistivity, L the rod length, a its
+    radius.
+    """
+    if conductivity_s_per_m <= 0.0:
+        return float("inf")
+    a = diameter_m / 2.0
+    return float((np.log(4.0 * length_m / a) - 1.0) / (2.0 * np.pi * length_m
+                                                        * conductivity_s_per_m))
+
+
+def near_field_warnings(ground: GroundSpec, freqs_hz: np.ndarray, lowest_m: float
+                        ) -> list[str]:
+    """Where the approximate near-field images of a real ground are outside their stated
+    validity (module docstring): |εc| < 10, or a wire lower than 0.001 λ."""
+    if ground.kind is not GroundKind.REAL or is_air(ground):
+        return []
+    f = np.asarray(freqs_hz, float)
+    eps = np.abs(complex_permittivity(ground.permittivity, ground.conductivity_s_per_m, f))
+    out = []
+    low = f[eps < 10.0]
+    if low.size:
+        out.append(f"|εc| = {float(np.min(eps)):.3g} < 10 at {low[0] / 1e6:g} MHz: the "
+                   "near-ground coupling is outside the model's stated validity")
+    limit_m = 1e-3 * C0_M_PER_S / float(np.max(f))        # 0.001 λ at the top frequency
+    if lowest_m < limit_m:
+        out.append(f"wire {lowest_m * 1e3:.3g} mm above real ground is below 0.001 λ "
+                   f"({limit_m * 1e3:.3g} mm): the near-ground coupling is outside the "
+                   "model's stated validity")
+    return out

@@ -28,7 +28,10 @@ image is sunk by a complex depth, while the vertical currents and the charges us
 quasi-static image coefficient K = (εc − 1)/(εc + 1) at the mirror point. Delta-gap sources
 and lumped loads sit at basis nodes: a gap of voltage V at node m gives V_m = V, a load
 Z_L adds Z_L to Z_mm. Optional wire loss adds the surface resistance per length
-Rs/(2πa), Rs = √(πfμ0/σ), through the Gram matrix of the halves.
+Rs/(2πa), Rs = √(πfμ0/σ), through the Gram matrix of the halves. An insulating coating
+(outer radius b, relative permittivity εr) adds the series impedance per length
+jω·μ0/(2π)·(1 − 1/εr)·ln(b/a) the same way (Richmond & Newman, "Dielectric coated wire
+antennas", Radio Science 11, 1976; the kernel keeps the conductor radius a).
 """
 
 from __future__ import annotations
@@ -75,13 +78,16 @@ class MomOperator:
     mid_factor : float
         Pairs closer than this many segment lengths use the 2×2 Gauss rule instead of
         the centroid rule (``np.inf``: every pair, the reference for accuracy checks).
+    coating_h_per_m : float
+        Series inductance per metre of an insulating coating (:func:`coating_h_per_m`).
     """
 
     def __init__(self, mesh: Mesh, image: bool, wire_conductivity_s_per_m: float = 0.0,
-                 mid_factor: float = MID_FACTOR):
+                 mid_factor: float = MID_FACTOR, coating_h_per_m: float = 0.0):
         self.mesh = mesh
         self.image = image
         self.sigma_wire = wire_conductivity_s_per_m
+        self.coating_h_per_m = coating_h_per_m
         s, n = mesh.n_segments, mesh.n_unknowns
         self.l = mesh.length_m
         self.a = mesh.radius_m
@@ -142,6 +148,7 @@ class MomOperator:
         ee, ff = np.tile([0, 0, 1, 1], s), np.tile([0, 1, 0, 1], s)
         gram = np.array([[1 / 3, 1 / 6], [1 / 6, 1 / 3]])
         self._loss = Scatter(mesh, idx, ee, idx, ff)
+        self._gram_table = self._loss.table((self.l[idx] * gram[ee, ff])[None, :])[0]
         self._loss_table = self._loss.table(
             (self.l[idx] / (2.0 * np.pi * self.a[idx]) * gram[ee, ff])[None, :])[0]
         self._n = n
@@ -227,6 +234,9 @@ class MomOperator:
         if self.sigma_wire > 0:
             rs = np.sqrt(np.pi * freq_hz * MU0_H_PER_M / self.sigma_wire)
             z.reshape(-1)[self._loss.targets] += rs * self._loss_table
+        if self.coating_h_per_m > 0:
+            z.reshape(-1)[self._loss.targets] += (
+                2j * np.pi * freq_hz * self.coating_h_per_m) * self._gram_table
         return z
 
 
@@ -264,6 +274,15 @@ class _ComplexImagePairs:
         gc = np.exp(-1j * k * rc) / rc
         da = np.einsum("kab,ijab->kij", g, self.w) - gc[:, None, None]
         self.scatter.add_to(z, (_C * k * self.fac[:, None, None] * da).reshape(-1))
+
+
+def coating_h_per_m(conductor_radius_m: float, outer_radius_m: float, eps_r: float) -> float:
+    """Series inductance per metre of a dielectric coating: μ0/(2π)·(1 − 1/εr)·ln(b/a)
+    (Richmond & Newman 1976, see the module docstring); 0 for a bare wire."""
+    if outer_radius_m <= conductor_radius_m or eps_r <= 1.0:
+        return 0.0
+    return float(MU0_H_PER_M / (2.0 * np.pi) * (1.0 - 1.0 / eps_r)
+                 * np.log(outer_radius_m / conductor_radius_m))
 
 
 def port_excitation(n_unknowns: int, port_indices: list[int]) -> np.ndarray:
