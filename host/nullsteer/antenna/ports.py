@@ -32,8 +32,7 @@ import numpy as np
 from nullsteer.antenna import farfield as ff
 from nullsteer.antenna.feedline import C0_M_PER_S
 from nullsteer.antenna.geometry import FedEnd, Mesh, as_fed_end, build_mesh
-from nullsteer.antenna.ground import (dwight_rod_ohm, image_depth_shift_m, is_air,
-                                      near_field_warnings, quasi_static_image_coefficient)
+from nullsteer.antenna.ground import dwight_rod_ohm, half_space_table, is_air
 from nullsteer.antenna.mom import (ETA0_OHM, MID_FACTOR, MomOperator, coating_h_per_m,
                                    port_excitation)
 from nullsteer.antenna.specs import AntennaSpec, FeedSpec, GroundKind, GroundSpec
@@ -417,22 +416,28 @@ class LoopModel:
                          coating_h_per_m(ant.radius_m, ant.outer_radius_m, ant.insulation_eps))
         ports = [mesh.ports[FedEnd.A], mesh.ports[FedEnd.B]]
         rhs = port_excitation(mesh.n_unknowns, ports)
-        zs = np.stack([op.matrix(f, image_depth_shift_m(ground, f),
-                                  quasi_static_image_coefficient(ground, f))
-                        for f in freqs])
+        zs = np.stack([op.matrix(f) for f in freqs] if ground.kind is not GroundKind.REAL
+                      else self._half_space_matrices(op, ground, freqs))
         r_stake = self.stake_ohm()
         for node in mesh.ground_nodes:     # the node's wires share one earth connection
             zs[:, np.array(node)[:, None], np.array(node)[None, :]] += r_stake
         cur = np.linalg.solve(zs, np.broadcast_to(rhs, zs.shape[:1] + rhs.shape))
         y = cur[:, ports, :]
         seg = np.moveaxis(mesh.segment_currents(np.moveaxis(cur, 0, 1)), 2, 0)
-        heights = np.concatenate([mesh.start_m[:, 2], mesh.end_m[:, 2]])
-        lowest = float(np.min(heights[heights > 0], initial=np.inf))   # ground nodes aside
-        notes = ant.notes + tuple(near_field_warnings(ground, freqs, lowest))
-        notes += tuple(passivity_warnings(freqs, y))
+        notes = ant.notes + tuple(passivity_warnings(freqs, y))
         return PortSolution(freqs_hz=freqs, y_siemens=y, seg_currents=seg, mesh=mesh,
                             ground=ground, feed=self.feed,
                             end_a_bearing_deg=ant.end_a_bearing_deg, notes=notes)
+
+
+    @staticmethod
+    def _half_space_matrices(op: MomOperator, ground: GroundSpec, freqs: np.ndarray
+                             ) -> list[np.ndarray]:
+        """The matrices over a lossy half-space: one Sommerfeld table per frequency."""
+        fill = op.half_space(2.0 * np.pi * float(np.max(freqs)) / C0_M_PER_S)
+        lo, hi = fill.r_range_m
+        return [op.matrix(f, half_space_table(ground, f, lo, hi, fill.zeta_min_m))
+                for f in freqs]
 
 
 def passivity_warnings(freqs_hz: np.ndarray, y_siemens: np.ndarray) -> list[str]:
