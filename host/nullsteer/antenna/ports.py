@@ -451,7 +451,7 @@ def passivity_warnings(freqs_hz: np.ndarray, y_siemens: np.ndarray) -> list[str]
     herm = 0.5 * (z + np.conj(np.swapaxes(z, 1, 2)))
     lo = np.linalg.eigvalsh(herm)[:, 0]
     scale = np.max(np.abs(z), axis=(1, 2))
-    bad = np.nonzero(lo < -1e-9 * scale)[0]
+    bad = np.nonzero(lo < -1e-7 * scale)[0]
     if bad.size == 0:
         return []
     return [f"the two-port is not passive at {freqs_hz[bad[0]] / 1e6:g} MHz (Re Z eigenvalue "

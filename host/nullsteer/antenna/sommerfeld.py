@@ -174,11 +174,28 @@ class HalfSpaceTable:
         out = np.empty((5,) + lr.shape, complex)
         for i, (sr, si) in enumerate(self.splines):
             out[i] = sr.ev(lr, th) + 1j * si.ev(lr, th)
-        if self.conductor:
-            out[0] -= 1.0
-            out[1] += 1.0
-            out[3] -= 1.0
+        return out + static_part(self.eps_c, self.conductor, th)
+
+
+def static_part(eps_c: complex, conductor: bool, theta_rad: np.ndarray) -> np.ndarray:
+    """The closed-form part of F (5, ...) kept out of the splines.
+
+    Conductor mode: the perfect image (U, V, K) = (−1, +1, −1). Otherwise the
+    quasi-static image of a dielectric, K_s = (εc − 1)/(εc + 1): V → K_s, K → −K_s,
+    ∂W/∂ρ → K_s·(R' − ζ)/(ρ·R') = K_s·tan(θ/2)/R' (so F_W → K_s·tan(θ/2)). The splines then
+    carry only the smooth remainder, which is small where the loop is electrically
+    close to the ground, so interpolation errors do not upset the near cancellations
+    that make the radiation resistance of a small loop.
+    """
+    th = np.asarray(theta_rad, float)
+    out = np.zeros((5,) + th.shape, complex)
+    if conductor:
+        out[0], out[1], out[3] = -1.0, 1.0, -1.0
         return out
+    ks = (eps_c - 1.0) / (eps_c + 1.0)
+    out[1], out[3] = ks, -ks
+    out[2] = ks * np.tan(0.5 * th)
+    return out
 
 
 def half_space_table(k0: float, eps_c: complex, r_min_m: float, r_max_m: float,
@@ -195,6 +212,8 @@ def half_space_table(k0: float, eps_c: complex, r_min_m: float, r_max_m: float,
     rho, zeta = rr * np.sin(tt), rr * np.cos(tt)
     vals = integrals(rho.ravel(), zeta.ravel(), k0, eps_c, conductor)
     fv = (vals / image_kernel(rr.ravel(), k0)[None]).reshape(5, n_r, n_theta)
+    if not conductor:       # (conductor mode: the integrals already leave the image out)
+        fv = fv - static_part(complex(eps_c), conductor, tt)
     splines = [(RectBivariateSpline(lr, th, fv[i].real), RectBivariateSpline(lr, th, fv[i].imag))
                for i in range(5)]
     return HalfSpaceTable(k0=k0, eps_c=complex(eps_c), conductor=conductor, splines=splines)
