@@ -133,13 +133,21 @@ def integrals(rho: np.ndarray, zeta: np.ndarray, k0: float, eps_c: complex,
     step = np.pi / np.maximum(span, 1e-12)
     k_c = lam_b if conductor else lam_b + 4.0 * abs(k1)
     k_c = np.minimum(k_c, lam_b + 40.0 / np.maximum(zeta, 1e-12))
-    width = np.minimum(step, 0.25 * min(abs(k1), lam_b))
-    n_dense = int(np.clip(np.max(np.ceil((k_c - lam_b) / width)), 0, MAX_DENSE))
+    # panels graded away from the branch point k_s (the integrand varies on the scale of
+    # the distance to it), each cut into pieces no longer than the half-period π/ρ
+    k_s = lam_b / 1.5
+    top = float(np.max(k_c))
+    edges = [lam_b]
+    while edges[-1] < top:
+        edges.append(min(top, k_s + 1.5 * (edges[-1] - k_s)))
     xg = 0.5 * (_XG + 1.0)
-    if n_dense:
-        h = (k_c - lam_b) / n_dense
-        for n in range(n_dense):
-            lam_r = (lam_b + n * h)[:, None] + h[:, None] * xg[None, :]
+    frac = np.clip((k_c - lam_b) / max(top - lam_b, 1e-300), 0.0, 1.0)   # per point
+    for a, b in zip(edges[:-1], edges[1:]):
+        pieces = max(1, int(min(MAX_DENSE, np.max(np.ceil((b - a) * frac / step)))))
+        h = (b - a) / pieces * frac
+        for j in range(pieces):
+            lo = lam_b + (a - lam_b + j * (b - a) / pieces) * frac
+            lam_r = lo[:, None] + h[:, None] * xg[None, :]
             f = _integrands(lam_r, rho[:, None], zeta[:, None], k0, eps_c, conductor, False)
             total = total + np.sum(f * (0.5 * _WG)[None, None, :], -1) * h[None]
     sums = np.empty((5, TAIL_TERMS, rho.size), complex)
