@@ -207,7 +207,7 @@ def static_part(eps_c: complex, conductor: bool, theta_rad: np.ndarray) -> np.nd
 
 
 def half_space_table(k0: float, eps_c: complex, r_min_m: float, r_max_m: float,
-                     zeta_min_m: float, per_decade: int = 8, n_theta: int = 13
+                     zeta_min_m: float, per_decade: int = 6, n_theta: int = 9
                      ) -> HalfSpaceTable:
     """Tabulate the kernels for distances R' in [r_min, r_max] (metres) at one frequency."""
     k1 = np.sqrt(eps_c) * k0
