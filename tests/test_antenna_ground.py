@@ -211,6 +211,9 @@ def test_wire_on_the_soil_rests_at_its_outer_radius():
                           "end_a_point_m": [4, 0, 0], "end_b_point_m": [-4, 0, 0]})
     sol = LoopModel(poly, parse_ground({"kind": "real"})).solve([1.83e6])
     assert sol.mesh.n_unknowns == sol.mesh.n_segments      # closed loop, no ground node
+    low = rect(0.0003, height=2.1)                          # below the 0.8 mm radius
+    assert low.polylines[0][0][2] == pytest.approx(0.8e-3) and "lifted" in low.notes[0]
+    assert rect(0.0, height=2.1).notes == ()               # resting on the soil: as asked
 
 
 def test_coated_wire_slows_the_wave():

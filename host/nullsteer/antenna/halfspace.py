@@ -68,7 +68,7 @@ class HalfSpaceFill:
         # close pairs: moments of the image tables, per entry
         self.close = close
         self.n_terms = series_terms(k_max * close.r_max_m) if close.p.size else 0
-        self._moments = close.moments(self.n_terms) if close.p.size else None
+        self._moments = close.moments(self.n_terms) if close.p.size else np.zeros(0)
         cp, cq = close.p, close.q
         self.cz = (np.outer(t[:, 2], t[:, 2]))[cp, cq]
         self.ch = (t[:, :2] @ t[:, :2].T)[cp, cq]
@@ -103,7 +103,7 @@ class HalfSpaceFill:
         if cl.p.size == 0:
             return
         coef = series_coefficients(k, cl.rho_m, self.n_terms) / cl.rho_m
-        da = np.einsum("n,nkij->kij", coef, self._moments)             # (K, 2, 2)
+        da = np.tensordot(coef, self._moments, axes=(0, 0))            # (K, 2, 2)
         fp = f[:, cl.p, cl.q]                                            # (5, K)
         vec = da * (fp[1] * self.cz + fp[0] * self.ch)[:, None, None]
         phi = da.sum(axis=(1, 2)) / self.cl
