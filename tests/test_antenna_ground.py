@@ -60,16 +60,19 @@ def test_air_ground_is_free_space():
         assert np.all(np.isfinite(r1)) and np.allclose(r1, r0, rtol=1e-3)
 
 
-def test_sommerfeld_integrals_against_direct_quadrature():
+@pytest.mark.parametrize("f,eps_r,sigma,rho,zeta", [
+    (3.0e6, 13.0, 0.005, (2.0, 0.3), (0.05, 3.0)),
+    (10e6, 81.0, 1e-4, (30.0, 20.0), (2.0, 0.5)),        # low-loss water, distant points
+])
+def test_sommerfeld_integrals_against_direct_quadrature(f, eps_r, sigma, rho, zeta):
     # The same integrals by brute force (trapezoid rule on a rectangular detour above
     # the branch points, far into the tail): a reference evaluation independent of the
     # ellipse, panels and ε-algorithm of the module.
-    f = 3.0e6
     k0 = 2 * np.pi * f / C0
-    eps = complex(complex_permittivity(13.0, 0.005, f))
-    rho, zeta = np.array([2.0, 0.3]), np.array([0.05, 3.0])
+    eps = complex(complex_permittivity(eps_r, sigma, f))
+    rho, zeta = np.array(rho), np.array(zeta)
     got = integrals(rho, zeta, k0, eps, False)
-    t = np.linspace(0.0, 1.0, 100001)
+    t = np.linspace(0.0, 1.0, 200001)
     top = 3 * abs(np.sqrt(eps)) * k0
     for i in range(2):
         h = min(k0, 1 / rho[i])

@@ -51,6 +51,8 @@ _XE, _WE = np.polynomial.legendre.leggauss(48)
 CONDUCTOR_KZETA = 30.0
 #: Half-periods summed by the ε-algorithm after the dense part (odd).
 TAIL_TERMS = 15
+#: Cap on the Gauss points along the half-ellipse.
+MAX_ELLIPSE = 800
 #: Cap on the dense panels over the soil's spectral transition.
 MAX_DENSE = 600
 
@@ -124,11 +126,14 @@ def integrals(rho: np.ndarray, zeta: np.ndarray, k0: float, eps_c: complex,
     # half-ellipse 0 → λ_b in the first quadrant
     span = np.maximum(rho, zeta)
     b = np.minimum(k0, 1.0 / np.maximum(rho, 1e-12))[:, None]
-    phi = 0.5 * np.pi * (_XE + 1.0)
+    # 48 points, or 10 per oscillation of J0 along the ellipse for distant points
+    n_e = int(min(MAX_ELLIPSE, max(48, 10 * np.ceil(lam_b * float(np.max(rho)) / np.pi))))
+    xe, we = np.polynomial.legendre.leggauss(n_e) if n_e != _XE.size else (_XE, _WE)
+    phi = 0.5 * np.pi * (xe + 1.0)
     lam = 0.5 * lam_b * (1.0 - np.cos(phi))[None, :] + 1j * b * np.sin(phi)[None, :]
     dlam = (0.5 * lam_b * np.sin(phi))[None, :] + 1j * b * np.cos(phi)[None, :]
     f = _integrands(lam, rho[:, None], zeta[:, None], k0, eps_c, conductor, True)
-    total = np.sum(f * (dlam * (0.5 * np.pi * _WE))[None], axis=-1)
+    total = np.sum(f * (dlam * (0.5 * np.pi * we))[None], axis=-1)
     # real axis: dense panels over the soil's transition, then ε-summed half-periods
     step = np.pi / np.maximum(span, 1e-12)
     k_c = lam_b if conductor else lam_b + 4.0 * abs(k1)
