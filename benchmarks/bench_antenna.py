@@ -12,8 +12,16 @@ import numpy as np
 
 from nullsteer.antenna.geometry import FedEnd, mesh_from_pieces
 from nullsteer.antenna.mom import MID_FACTOR, MomOperator, port_excitation
+from pathlib import Path
+
+from nullsteer.antenna.ground import half_space_table
+from nullsteer.antenna.needed import needed_range
 from nullsteer.antenna.ports import LoopModel
 from nullsteer.antenna.specs import parse_antenna, parse_ground
+from nullsteer.antenna.station import station_loop
+from nullsteer.station.config import load_station
+
+EXAMPLE = Path(__file__).resolve().parents[1] / "examples" / "station.toml"
 
 FLAG = dict(shape="rectangle", length_m=8.84, height_m=6.1, bottom_m=1.83,
             wire_diameter_mm=1.63, end_a_bearing_deg=65.0)
@@ -34,13 +42,11 @@ def port_reduction():
     sol = model.solve([1.83e6])
     mesh = sol.mesh
     op = MomOperator(mesh, True)
-    from nullsteer.antenna.ground import image_depth_shift_m, quasi_static_image_coefficient
-    g = model.ground
+    table = real_table(op, model.ground, 1.83e6)
     pa, pb = mesh.ports[FedEnd.A], mesh.ports[FedEnd.B]
 
     def naive():
-        z = op.matrix(1.83e6, image_depth_shift_m(g, 1.83e6),
-                      quasi_static_image_coefficient(g, 1.83e6))
+        z = op.matrix(1.83e6, table)
         v = np.zeros(mesh.n_unknowns, complex)
         v[pa] = 1
         out = []
@@ -50,8 +56,7 @@ def port_reduction():
             out.append(1 / np.linalg.solve(zl, v)[pa])
         return out
 
-    z0 = op.matrix(1.83e6, image_depth_shift_m(g, 1.83e6),
-                   quasi_static_image_coefficient(g, 1.83e6))
+    z0 = op.matrix(1.83e6, table)
     rhs = port_excitation(mesh.n_unknowns, [pa, pb])
 
     def reduced():   # same filled matrix: one solve with two right-hand sides + algebra
@@ -60,8 +65,7 @@ def port_reduction():
         yt = 1.0 / terms
         return 1.0 / (y[0, 0] - y[0, 1] * y[1, 0] / (y[1, 1] + yt))
 
-    t_fill = best_of(lambda: op.matrix(1.83e6, image_depth_shift_m(g, 1.83e6),
-                                       quasi_static_image_coefficient(g, 1.83e6)), 5)
+    t_fill = best_of(lambda: op.matrix(1.83e6, table), 5)
     t_naive, t_red = best_of(naive, 3), best_of(reduced, 20)
     t_naive_solves = t_naive - t_fill
     print(f"port reduction, 256 terminations ({mesh.n_unknowns} unknowns): 256 loaded "
@@ -88,8 +92,12 @@ def fill_vs_lu(n_target=400):
     print(f"matrix fill vs LU at {mesh.n_unknowns} unknowns: fill {t_fill * 1e3:.1f} ms, "
           f"LU+solve {t_lu * 1e3:.1f} ms, ratio {t_fill / t_lu:.2f}  [goal <= 2]")
     op_g = MomOperator(mesh, True)
-    t_fill_g = best_of(lambda: op_g.matrix(10e6, 3.0 - 3.0j, 0.9 - 0.1j), 3)
-    print(f"  same over real ground (two image sets): fill {t_fill_g * 1e3:.1f} ms")
+    ground = parse_ground({"kind": "real"})
+    table = real_table(op_g, ground, 10e6)
+    t_tab = best_of(lambda: real_table(op_g, ground, 10e6), 3)
+    t_fill_g = best_of(lambda: op_g.matrix(10e6, table), 3)
+    print(f"  same over real ground (Sommerfeld half-space): table {t_tab * 1e3:.1f} ms + "
+          f"fill {t_fill_g * 1e3:.1f} ms")
     op_ref = MomOperator(mesh, False, mid_factor=np.inf)
     z_ref = op_ref.matrix(10e6)
     t_ref = best_of(lambda: op_ref.matrix(10e6), 3)
@@ -120,26 +128,56 @@ def fill_accuracy():
           f"RDF {np.max(np.abs(d0 - d1)):.4f} dB")
 
 
+def real_table(op, ground, freq_hz):
+    fill = op.half_space(2 * np.pi * freq_hz / 299_792_458.0)
+    lo, hi = fill.r_range_m
+    return half_space_table(ground, freq_hz, lo, hi, fill.zeta_min_m)
+
+
 def full_sweep():
-    model = LoopModel(parse_antenna(FLAG), parse_ground({"kind": "real"}))
     freqs = np.linspace(1.8e6, 2.0e6, 60)
     terms = np.geomspace(100.0, 10000.0, 256)[None, :]
     az = np.arange(0.0, 360.0, 1.0)
     el = np.array([10.0, 30.0, 60.0])
+    times = {}
+    for kind in ("perfect", "real"):
+        model = LoopModel(parse_antenna(FLAG), parse_ground({"kind": kind}))
 
-    def sweep():
-        sol = model.solve(freqs)
-        out = []
-        for fe in (FedEnd.A, FedEnd.B):
-            out.append(sol.gain_dbi(terms, fe, az[None, :], el[:, None]))
-            out.append(sol.rdf_db(terms, fe))
-        return out
+        def sweep():
+            sol = model.solve(freqs)
+            out = []
+            for fe in (FedEnd.A, FedEnd.B):
+                out.append(sol.gain_dbi(terms, fe, az[None, :], el[:, None]))
+                out.append(sol.rdf_db(terms, fe))
+            return out
 
-    t = best_of(sweep, 3)
-    print(f"full sweep 60 f x 2 ends x 256 R x 360 az x 3 el + RDF: {t:.2f} s  "
-          f"[goal <= 1.5 s]")
-    t_solve = best_of(lambda: model.solve(freqs), 3)
-    print(f"  of which 60 MoM solves: {t_solve:.3f} s")
+        times[kind] = (best_of(sweep, 3), best_of(lambda: model.solve(freqs), 3))
+    (tp, sp), (tr, sr) = times["perfect"], times["real"]
+    print(f"full sweep 60 f x 2 ends x 256 R x 360 az x 3 el + RDF: perfect ground "
+          f"{tp:.2f} s, real ground {tr:.2f} s, ratio {tr / tp:.1f}  "
+          f"[goal real <= 1.5 s, <= 3x perfect]")
+    print(f"  of which 60 MoM solves: perfect {sp:.3f} s, real {sr:.3f} s")
+
+
+def demo_station_sweep():
+    """The demo station's own loop and band (examples/station.toml), both grounds."""
+    loop = station_loop(load_station(EXAMPLE))
+    freqs = np.array(loop.band.freqs_hz)
+    els = np.array(loop.band.elevations_deg)
+    t = {}
+    for kind in ("perfect", "real"):
+        ground = loop.ground if kind == "real" else parse_ground({"kind": "perfect"})
+        model = LoopModel(loop.antenna, ground, loop.feed)
+
+        def run():
+            sol = model.solve(freqs)
+            r = sol.optimum_termination_ohm("A", els)
+            return needed_range(sol, (els.min(), els.max())), sol.rdf_db(r, "A")
+
+        t[kind] = best_of(run, 3)
+    print(f"demo station sweep ({freqs.size} f, optimum, needed range, RDF): perfect "
+          f"{t['perfect'] * 1e3:.0f} ms, real {t['real'] * 1e3:.0f} ms, ratio "
+          f"{t['real'] / t['perfect']:.1f}  [goal <= 3x, <= 1.5 s]")
 
 
 if __name__ == "__main__":
@@ -147,3 +185,4 @@ if __name__ == "__main__":
     fill_vs_lu()
     fill_accuracy()
     full_sweep()
+    demo_station_sweep()

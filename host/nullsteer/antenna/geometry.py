@@ -9,9 +9,12 @@ basis function lives on the two segments meeting at a node: it rises linearly fr
 along the first segment and falls back to 0 along the second, so the current is continuous
 through the node and corners need no special treatment. A node where k > 2 segments meet
 (junction) gets k − 1 basis functions that pair the first segment with each of the others.
-A wire end at z = 0 over a perfect or real ground is connected to its image: its basis
-function is the half triangle on the wire (the image half is carried by the image term of
-the kernel). A free wire end carries no basis function (zero current).
+A ground node (a vertex named in the spec's ground points, over a perfect or real
+ground) is connected to its image: each wire there gets the half triangle on the wire (the
+image half is carried by the image term of the kernel), and the node's basis functions are
+listed in ``Mesh.ground_nodes`` so the stake resistance can be put in series. Any other
+vertex at height 0 is an ordinary node (the spec has lifted the wire to rest on the soil).
+A free wire end carries no basis function (zero current).
 
 Segmenting rules of thumb (common practice for thin-wire MoM): segment length ≤ λ/20 at
 the highest frequency (warning above λ/10), segment length ≥ 8 wire radii for the reduced
@@ -75,6 +78,8 @@ class Mesh:
     basis_sign: np.ndarray
     ports: dict = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
+    ground_nodes: tuple[tuple[int, ...], ...] = ()
+    """Basis indices of each ground node (their currents share the node's stake)."""
 
     @property
     def n_segments(self) -> int:
@@ -180,8 +185,11 @@ def build_mesh(spec: AntennaSpec, grounded: bool, max_freq_hz: float,
     ports = {FedEnd.A: frame_to_enu(np.array(spec.end_a_m), spec.end_a_bearing_deg),
              FedEnd.B: frame_to_enu(np.array(spec.end_b_m), spec.end_a_bearing_deg)}
     keys = {FedEnd.A: "antenna.end_a_point_m", FedEnd.B: "antenna.end_b_point_m"}
+    if spec.ground_points and not grounded:
+        raise ConfigError("antenna.ground_points_m", "needs a ground (kind perfect or real)")
+    gpts = [frame_to_enu(np.array(p), spec.end_a_bearing_deg) for p in spec.ground_points]
     return mesh_from_pieces(pieces, spec.radius_m, ports, grounded, max_freq_hz,
-                            spec.segments_per_wire, density, keys)
+                            spec.segments_per_wire, density, keys, ground_points=gpts)
 
 
 def _key(p: np.ndarray) -> tuple[int, ...]:
@@ -191,7 +199,8 @@ def _key(p: np.ndarray) -> tuple[int, ...]:
 def mesh_from_pieces(pieces: list[tuple[np.ndarray, np.ndarray]], radius_m: float,
                      port_points: dict, grounded: bool, max_freq_hz: float,
                      fixed: int = 0, density: float = 1.0,
-                     port_keys: dict | None = None) -> Mesh:
+                     port_keys: dict | None = None,
+                     ground_points: list[np.ndarray] | None = None) -> Mesh:
     """Mesh straight pieces (east/north/up end points, metres) with ports at given vertices.
 
     Parameters
@@ -206,6 +215,9 @@ def mesh_from_pieces(pieces: list[tuple[np.ndarray, np.ndarray]], radius_m: floa
         See :func:`build_mesh` and :func:`segment_counts`.
     port_keys : dict, optional
         Port name -> configuration key named in the error if the point is no vertex.
+    ground_points : list of points, optional
+        Vertices connected to the ground when ``grounded`` (None: every vertex at z = 0,
+        for hand-built meshes such as a monopole on its ground plane).
     """
     lengths = np.array([np.linalg.norm(p1 - p0) for p0, p1 in pieces])
     counts, warnings = segment_counts(lengths, max_freq_hz, radius_m, fixed, density)
@@ -224,9 +236,14 @@ def mesh_from_pieces(pieces: list[tuple[np.ndarray, np.ndarray]], radius_m: floa
             node = nodes.setdefault(_key(p), len(nodes))
             attached.setdefault(node, []).append((s, e))
             height[node] = float(p[2])
+    if ground_points is None:
+        to_ground = {n for n, h in height.items() if abs(h) < 1e-6}
+    else:
+        to_ground = {nodes[_key(np.asarray(p, float))] for p in ground_points
+                     if _key(np.asarray(p, float)) in nodes}
     bseg, bend, bsign, bnode = [], [], [], []
     for node, segs in attached.items():
-        if grounded and abs(height[node]) < 1e-6:
+        if grounded and node in to_ground:
             for s, e in segs:  # half basis: current flows out of the ground up the wire
                 bseg.append((s, s)); bend.append((e, e))
                 bsign.append((1.0 if e == 0 else -1.0, 0.0)); bnode.append(node)
@@ -246,8 +263,10 @@ def mesh_from_pieces(pieces: list[tuple[np.ndarray, np.ndarray]], radius_m: floa
         if len(idx) != 1:
             raise ConfigError(key, "a port must sit where exactly two segments meet")
         ports[name] = idx[0]
+    gnodes = tuple(tuple(i for i, n in enumerate(bnode) if n == g)
+                   for g in sorted(to_ground)) if grounded else ()
     return Mesh(start_m=start, end_m=end, radius_m=np.full(len(start), radius_m),
                 basis_seg=np.array(bseg, dtype=int).reshape(-1, 2),
                 basis_end=np.array(bend, dtype=int).reshape(-1, 2),
                 basis_sign=np.array(bsign, dtype=float).reshape(-1, 2),
-                ports=ports, warnings=tuple(warnings))
+                ports=ports, warnings=tuple(warnings), ground_nodes=gnodes)

@@ -1,22 +1,20 @@
-"""Ground models: complex permittivity, Fresnel reflection, near-field image.
+"""Ground models: complex permittivity, Fresnel reflection, the half-space kernels.
 
 Far field (space wave): the direct ray plus the ray reflected at the ground, weighted by
 the plane-wave Fresnel coefficients (Balanis §4.8), with the complex relative permittivity
-εc = εr − j·60·σ·λ (λ in metres). The surface wave is not modelled, so the field of a real
-ground vanishes at zero elevation.
+εc = εr − j·60·σ·λ (λ in metres). This is the far-field (stationary-phase) limit of the
+same Sommerfeld integrals the near field uses, so both describe one ground. The surface
+wave is not in the space wave, so the field of a real ground vanishes at zero elevation.
 
 Near field (the MoM kernel): a perfect ground is the exact image (reflected wires with
-the current direction mirrored, Balanis §4.7). A real ground uses two approximate images:
-the horizontal currents' image is the perfect-ground image sunk to a complex depth, the
-image of a point at height h sitting at −(h + 2p) with p = 1 / (j·k0·√(εc − 1)) (complex
-image method for a finitely conducting half-space, Wait / Bannister; from memory; for a
-good conductor 2p = δ(1 − j), δ the skin depth). The vertical currents and the charges use
-the quasi-static image of a dielectric half-space, coefficient K = (εc − 1)/(εc + 1) at the
-mirror point (electrostatic image; common practice). Both become the perfect-ground
-image when σ → ∞, and both are passive (they add loss, never gain). Validity limits (stated, not enforced): |εc| ≳ 10, wire
-heights at least a few wire radii and ≳ 0.001 λ, and loops within about λ/2 of the ground
-where the real ground matters most for the currents; the coupling to the ground is then
-good to a few per cent in impedance, while patterns are set by the Fresnel far field.
+the current direction mirrored, Balanis §4.7). A lossy ground is the homogeneous
+half-space of Sommerfeld, evaluated by numerical integration and tabulated per frequency
+(:mod:`nullsteer.antenna.sommerfeld`, :mod:`nullsteer.antenna.halfspace`); it is exact
+for any εc, tends to the perfect image as σ → ∞ and to free space as εc → 1, and is
+passive. The limits that remain are those of the thin-wire kernel: a wire lying on the
+soil has its image two outer radii away, where the reduced kernel is good to a few per
+cent. Stakes (ground points) are connected through the image, with Dwight's rod
+resistance in series.
 """
 
 from __future__ import annotations
@@ -24,6 +22,8 @@ from __future__ import annotations
 import numpy as np
 
 from nullsteer.antenna.feedline import C0_M_PER_S
+from nullsteer.antenna.sommerfeld import HalfSpaceTable
+from nullsteer.antenna.sommerfeld import half_space_table as sommerfeld_table
 from nullsteer.antenna.specs import GroundKind, GroundSpec
 
 
@@ -66,26 +66,31 @@ def reflection_coefficients(ground: GroundSpec, freq_hz: np.ndarray | float,
     return fresnel(eps, g)
 
 
-def image_depth_shift_m(ground: GroundSpec, freq_hz: float) -> complex:
-    """Extra depth 2p of the near-field image below the mirror point, metres (complex).
-
-    0 for a perfect ground; 2 / (j·k0·√(εc − 1)) for a real ground (see module docstring).
-    """
-    if ground.kind is not GroundKind.REAL:
-        return 0j
+def half_space_table(ground: GroundSpec, freq_hz: float, r_min_m: float, r_max_m: float,
+                     zeta_min_m: float) -> HalfSpaceTable:
+    """The lossy half-space kernels at ``freq_hz`` for the distance range of a mesh."""
     k0 = 2.0 * np.pi * freq_hz / C0_M_PER_S
-    eps = complex_permittivity(ground.permittivity, ground.conductivity_s_per_m, freq_hz)
-    root = np.sqrt(eps - 1.0)
-    if root.real < 0:
-        root = -root
-    return complex(2.0 / (1j * k0 * root))
+    eps = complex(complex_permittivity(ground.permittivity, ground.conductivity_s_per_m,
+                                       freq_hz))
+    return sommerfeld_table(k0, eps, r_min_m, r_max_m, zeta_min_m)
 
 
-def quasi_static_image_coefficient(ground: GroundSpec, freq_hz: float) -> complex:
-    """K = (εc − 1)/(εc + 1) for real ground, 1 for perfect ground, 0 in free space."""
-    if ground.kind is GroundKind.FREE:
-        return 0j
-    if ground.kind is GroundKind.PERFECT:
-        return 1.0 + 0j
-    eps = complex_permittivity(ground.permittivity, ground.conductivity_s_per_m, freq_hz)
-    return complex((eps - 1.0) / (eps + 1.0))
+def is_air(ground: GroundSpec) -> bool:
+    """True for free space, or for a "real" ground with εr = 1 and σ = 0 (no interface)."""
+    return ground.kind is GroundKind.FREE or (
+        ground.kind is GroundKind.REAL and ground.permittivity == 1.0
+        and ground.conductivity_s_per_m == 0.0)
+
+
+def dwight_rod_ohm(conductivity_s_per_m: float, length_m: float, diameter_m: float) -> float:
+    """Resistance of one driven vertical rod to remote earth, ohms (inf for σ = 0).
+
+    Dwight, "Calculation of resistances to ground", AIEE Transactions 55 (1936):
+    R = ρ/(2πL)·(ln(4L/a) − 1), ρ = 1/σ the soil resistivity, L the rod length, a its
+    radius.
+    """
+    if conductivity_s_per_m <= 0.0:
+        return float("inf")
+    a = diameter_m / 2.0
+    return float((np.log(4.0 * length_m / a) - 1.0) / (2.0 * np.pi * length_m
+                                                        * conductivity_s_per_m))

@@ -21,14 +21,16 @@ distance R is of order (l/R)²/24 + (kl)²/24 (Taylor expansion of the midpoint 
 at R ≥ ``MID_FACTOR``·l with l ≤ λ/20 it is below 5e-4 per pair, and the impedances and
 optimum terminations move by far less (see the benchmark and tests).
 
-Ground enters through image source sets (:mod:`nullsteer.antenna.ground`): over perfect
-ground the mirrored segments with the current mirrored and negated (horizontal parts
-reversed, vertical kept, charge negated: exact). Over real ground the horizontal currents'
-image is sunk by a complex depth, while the vertical currents and the charges use the
-quasi-static image coefficient K = (εc − 1)/(εc + 1) at the mirror point. Delta-gap sources
+Ground enters through the image source set: over perfect ground the mirrored segments
+with the current mirrored and negated (horizontal parts reversed, vertical kept, charge
+negated: exact). Over a lossy ground the same image geometry carries the Sommerfeld
+kernels of the half-space (:mod:`nullsteer.antenna.halfspace`). Delta-gap sources
 and lumped loads sit at basis nodes: a gap of voltage V at node m gives V_m = V, a load
 Z_L adds Z_L to Z_mm. Optional wire loss adds the surface resistance per length
-Rs/(2πa), Rs = √(πfμ0/σ), through the Gram matrix of the halves.
+Rs/(2πa), Rs = √(πfμ0/σ), through the Gram matrix of the halves. An insulating coating
+(outer radius b, relative permittivity εr) adds the series impedance per length
+jω·μ0/(2π)·(1 − 1/εr)·ln(b/a) the same way (Richmond & Newman, "Dielectric coated wire
+antennas", Radio Science 11, 1976; the kernel keeps the conductor radius a).
 """
 
 from __future__ import annotations
@@ -39,8 +41,9 @@ import numpy as np
 
 from nullsteer.antenna.feedline import C0_M_PER_S
 from nullsteer.antenna.geometry import Mesh
-from nullsteer.antenna.pairs import (G2, PairSeries, Scatter, lam, pair_series,
-                                     segment_points, series_terms)
+from nullsteer.antenna.halfspace import HalfSpaceFill
+from nullsteer.antenna.pairs import PairSeries, Scatter, pair_series, series_terms
+from nullsteer.antenna.sommerfeld import HalfSpaceTable
 
 ETA0_OHM = 376.730313668
 MU0_H_PER_M = 1.25663706212e-6
@@ -75,13 +78,16 @@ class MomOperator:
     mid_factor : float
         Pairs closer than this many segment lengths use the 2×2 Gauss rule instead of
         the centroid rule (``np.inf``: every pair, the reference for accuracy checks).
+    coating_h_per_m : float
+        Series inductance per metre of an insulating coating (:func:`coating_h_per_m`).
     """
 
     def __init__(self, mesh: Mesh, image: bool, wire_conductivity_s_per_m: float = 0.0,
-                 mid_factor: float = MID_FACTOR):
+                 mid_factor: float = MID_FACTOR, coating_h_per_m: float = 0.0):
         self.mesh = mesh
         self.image = image
         self.sigma_wire = wire_conductivity_s_per_m
+        self.coating_h_per_m = coating_h_per_m
         s, n = mesh.n_segments, mesh.n_unknowns
         self.l = mesh.length_m
         self.a = mesh.radius_m
@@ -132,16 +138,15 @@ class MomOperator:
                                   close_i,
                                   {"z": (dz / ll)[close_i.p, close_i.q],
                                    "h": (dh / ll)[close_i.p, close_i.q]}))
-            # complex image (real ground): horizontal distance² and height sums
-            self._rho2 = full(np.sum((cen[:, None, :2] - cen[None, :, :2]) ** 2, 2) + a2)
-            self._zsum = full(cen[:, None, 2] + cen[None, :, 2])
-            self._dh = self.sets[1].parts["h"]
-            self._cplx = _ComplexImagePairs(mesh, close_i, dh / ll)
+            self._r_img = r_img
+            self._half_space: HalfSpaceFill | None = None
+            self._half_space_k = 0.0
         # wire loss: Rs/(2πa) per metre through the Gram matrix of the halves, per Rs
         idx = np.repeat(np.arange(s), 4)
         ee, ff = np.tile([0, 0, 1, 1], s), np.tile([0, 1, 0, 1], s)
         gram = np.array([[1 / 3, 1 / 6], [1 / 6, 1 / 3]])
         self._loss = Scatter(mesh, idx, ee, idx, ff)
+        self._gram_table = self._loss.table((self.l[idx] * gram[ee, ff])[None, :])[0]
         self._loss_table = self._loss.table(
             (self.l[idx] / (2.0 * np.pi * self.a[idx]) * gram[ee, ff])[None, :])[0]
         self._n = n
@@ -177,18 +182,23 @@ class MomOperator:
         z.reshape(-1)[cl.scatter.targets] += val
 
     # -- fill -------------------------------------------------------------------------
-    def matrix(self, freq_hz: float, image_shift_m: complex = 0j,
-               image_coef: complex = 1.0) -> np.ndarray:
+    def half_space(self, k_max: float) -> HalfSpaceFill:
+        """The reflected fill over a lossy half-space (built once, for wavenumbers ≤ k_max)."""
+        if self._half_space is None or self._half_space_k < k_max:
+            self._half_space = HalfSpaceFill(self.mesh, self.sets[1].close, self._r_img, k_max)
+            self._half_space_k = k_max
+        return self._half_space
+
+    def matrix(self, freq_hz: float, table: HalfSpaceTable | None = None) -> np.ndarray:
         """The (N, N) impedance matrix at ``freq_hz``, ohms (no port loads).
 
         Parameters
         ----------
         freq_hz : float
-        image_shift_m : complex
-            Extra complex depth of the horizontal-current image (0: perfect ground).
-        image_coef : complex
-            Quasi-static image coefficient K of the vertical currents and of the charges
-            (1 for a perfect ground, (εc − 1)/(εc + 1) for a real one).
+        table : HalfSpaceTable, optional
+            The lossy half-space's kernels at this frequency
+            (:func:`nullsteer.antenna.sommerfeld.half_space_table`); without it an operator
+            built with ``image`` fills the perfect-ground image.
         """
         k = 2.0 * np.pi * freq_hz / C0_M_PER_S
         d = self.sets[0]
@@ -199,71 +209,39 @@ class MomOperator:
         vec = (k / 4.0) * d.parts["tt"]                  # segment vectors folded in
         np.multiply(g, vec - 1.0 / k, out=h0)
         np.multiply(g, vec + 1.0 / k, out=h1)
-        perfect = image_shift_m == 0 and image_coef == 1.0
-        if self.image:
+        perfect = self.image and table is None
+        if perfect:
             im = self.sets[1]
             gi = self._kernel(k, im.r_packed, im.c_over_r)
-            vec = (k / 4.0) * (image_coef * im.parts["z"]
-                               - (im.parts["h"] if perfect else 0.0))
-            sca = -image_coef / k
-            h0 += gi * (vec - sca)
-            h1 += gi * (vec + sca)
-            if not perfect:
-                rc = np.sqrt(self._rho2 + (self._zsum + image_shift_m) ** 2)
-                gc = self._kernel(k, rc) * ((-k / 4.0) * self._dh)
-                h0 += gc
-                h1 += gc
+            vec = (k / 4.0) * (im.parts["z"] - im.parts["h"])
+            h0 += gi * (vec + 1.0 / k)
+            h1 += gi * (vec - 1.0 / k)
         np.negative(h[:2 * npk], out=h[2 * npk:4 * npk])
         h[-1] = 0.0
         z = h.take(self._gather[0])
         for lin in self._gather[1:]:
             z += h.take(lin)
         self._close(z, k, d, {"tt": 1.0}, 1.0)
-        if self.image:
-            w = {"z": image_coef, "h": -1.0} if perfect else {"z": image_coef}
-            self._close(z, k, self.sets[1], w, -image_coef)
-            if not perfect:
-                self._cplx.add_to(z, k, image_shift_m)
+        if perfect:
+            self._close(z, k, self.sets[1], {"z": 1.0, "h": -1.0}, -1.0)
+        elif self.image and table is not None:
+            self.half_space(k).add_to(z, k, table)
         if self.sigma_wire > 0:
             rs = np.sqrt(np.pi * freq_hz * MU0_H_PER_M / self.sigma_wire)
             z.reshape(-1)[self._loss.targets] += rs * self._loss_table
+        if self.coating_h_per_m > 0:
+            z.reshape(-1)[self._loss.targets] += (
+                2j * np.pi * freq_hz * self.coating_h_per_m) * self._gram_table
         return z
 
 
-class _ComplexImagePairs:
-    """2×2-Gauss correction of the complex (sunk) image for pairs close to the mirror.
-
-    The complex depth depends on frequency, so these few pairs are evaluated directly.
-    """
-
-    def __init__(self, mesh: Mesh, close: PairSeries, th_th: np.ndarray) -> None:
-        p, q = close.p, close.q
-        self.p, self.q, self.scatter = p, q, close.scatter
-        ln = mesh.length_m
-        obs = segment_points(mesh.start_m, mesh.end_m, p, G2)
-        src = segment_points(mesh.start_m, mesh.end_m, q, G2)
-        a2 = mesh.radius_m[q] ** 2
-        self.rho2 = (np.sum((obs[:, :, None, :2] - src[:, None, :, :2]) ** 2, 3)
-                     + a2[:, None, None])                                  # (K, a, b)
-        self.zsum = obs[:, :, None, 2] + src[:, None, :, 2]
-        cen = 0.5 * (mesh.start_m + mesh.end_m)
-        cen_o, cen_s = cen[p], cen[q]
-        a2c = 0.5 * (mesh.radius_m[p] ** 2 + a2)
-        self.rho2_c = np.sum((cen_o[:, :2] - cen_s[:, :2]) ** 2, 1) + a2c
-        self.zsum_c = cen_o[:, 2] + cen_s[:, 2]
-        lg = lam(G2)
-        self.w = np.einsum("ia,jb->ijab", lg, lg)
-        self.fac = -(ln[p] * ln[q] / 4.0) * th_th[p, q]
-
-    def add_to(self, z: np.ndarray, k: float, shift_m: complex) -> None:
-        if self.p.size == 0:
-            return
-        r = np.sqrt(self.rho2 + (self.zsum + shift_m) ** 2)
-        rc = np.sqrt(self.rho2_c + (self.zsum_c + shift_m) ** 2)
-        g = np.exp(-1j * k * r) / r
-        gc = np.exp(-1j * k * rc) / rc
-        da = np.einsum("kab,ijab->kij", g, self.w) - gc[:, None, None]
-        self.scatter.add_to(z, (_C * k * self.fac[:, None, None] * da).reshape(-1))
+def coating_h_per_m(conductor_radius_m: float, outer_radius_m: float, eps_r: float) -> float:
+    """Series inductance per metre of a dielectric coating: μ0/(2π)·(1 − 1/εr)·ln(b/a)
+    (Richmond & Newman 1976, see the module docstring); 0 for a bare wire."""
+    if outer_radius_m <= conductor_radius_m or eps_r <= 1.0:
+        return 0.0
+    return float(MU0_H_PER_M / (2.0 * np.pi) * (1.0 - 1.0 / eps_r)
+                 * np.log(outer_radius_m / conductor_radius_m))
 
 
 def port_excitation(n_unknowns: int, port_indices: list[int]) -> np.ndarray:

@@ -32,9 +32,12 @@ import numpy as np
 from nullsteer.antenna import farfield as ff
 from nullsteer.antenna.feedline import C0_M_PER_S
 from nullsteer.antenna.geometry import FedEnd, Mesh, as_fed_end, build_mesh
-from nullsteer.antenna.ground import image_depth_shift_m, quasi_static_image_coefficient
-from nullsteer.antenna.mom import ETA0_OHM, MID_FACTOR, MomOperator, port_excitation
+from nullsteer.antenna.ground import dwight_rod_ohm, half_space_table, is_air
+from nullsteer.antenna.mom import (ETA0_OHM, MID_FACTOR, MomOperator, coating_h_per_m,
+                                   port_excitation)
 from nullsteer.antenna.specs import AntennaSpec, FeedSpec, GroundKind, GroundSpec
+from nullsteer.antenna.validity import check_budget, hemisphere_order
+from nullsteer.errors import ConfigError
 
 _IDX = {FedEnd.A: (0, 1), FedEnd.B: (1, 0)}
 
@@ -83,6 +86,7 @@ class PortSolution:
     ground: GroundSpec
     feed: FeedSpec
     end_a_bearing_deg: float
+    notes: tuple[str, ...] = ()
     _cache: dict = field(default_factory=dict, repr=False)
 
     @property
@@ -92,7 +96,8 @@ class PortSolution:
 
     @property
     def warnings(self) -> tuple[str, ...]:
-        return self.mesh.warnings
+        """Rule-of-thumb and validity warnings of the mesh and the ground model."""
+        return self.mesh.warnings + self.notes
 
     def _sel(self, freq_index) -> np.ndarray:
         idx = np.arange(len(self.freqs_hz))
@@ -272,9 +277,7 @@ class PortSolution:
         """∫ N_i·N_j* dΩ over the upper hemisphere, (F', 2, 2) by port (A, B)."""
         key = "gram"
         if key not in self._cache:
-            ext = np.max(np.linalg.norm(np.vstack([self.mesh.start_m, self.mesh.end_m]), axis=1))
-            k = 2 * np.pi * np.max(self.freqs_hz) / C0_M_PER_S
-            n_el = int(max(16, 2 * k * ext + 8))
+            n_el = hemisphere_order(self.mesh, float(np.max(self.freqs_hz)))
             az, el, w = ff.sphere_grid(n_el, 2 * n_el)
             pf = self.port_fields(az, el)                       # (F, 2, 2, D)
             self._cache[key] = np.einsum("fcid,fcjd,d->fij", pf, np.conj(pf), w)
@@ -377,23 +380,80 @@ class LoopModel:
         self.mid_factor = mid_factor
 
     def mesh(self, max_freq_hz: float) -> Mesh:
-        grounded = self.ground.kind is not GroundKind.FREE
-        return build_mesh(self.antenna, grounded, max_freq_hz, self.density)
+        return build_mesh(self.antenna, not is_air(self.ground), max_freq_hz, self.density)
+
+    def stake_ohm(self) -> float:
+        """Series resistance of each ground point's earth connection, ohms.
+
+        0 over perfect ground; the user's ``stake_ohm``, else Dwight's rod formula
+        (:func:`~nullsteer.antenna.ground.dwight_rod_ohm`) with the ground's σ.
+        """
+        st = self.antenna.stake
+        if st is None or self.ground.kind is GroundKind.PERFECT:
+            return 0.0
+        if st.resistance_ohm is not None:
+            return st.resistance_ohm
+        r = dwight_rod_ohm(self.ground.conductivity_s_per_m, st.length_m, st.diameter_m)
+        if not np.isfinite(r):
+            raise ConfigError("antenna.stake_ohm", "a ground of zero conductivity has no "
+                              "rod resistance: give stake_ohm")
+        return r
 
     def solve(self, freqs_hz) -> PortSolution:
-        """One MoM solve per frequency (two right-hand sides); returns the two-port data."""
+        """One MoM solve per frequency (two right-hand sides); returns the two-port data.
+
+        The mesh is checked against the budget of :mod:`nullsteer.antenna.validity`
+        before anything is filled (ConfigError naming ``band.freqs_mhz``).
+        """
         freqs = np.atleast_1d(np.asarray(freqs_hz, float))
-        mesh = self.mesh(float(np.max(freqs)))
-        op = MomOperator(mesh, self.ground.kind is not GroundKind.FREE,
-                         self.antenna.wire_conductivity_s_per_m, self.mid_factor)
+        f_max = float(np.max(freqs))
+        mesh = self.mesh(f_max)
+        check_budget(mesh, freqs.size, f_max)
+        ground = GroundSpec(kind=GroundKind.FREE) if is_air(self.ground) else self.ground
+        ant = self.antenna
+        op = MomOperator(mesh, ground.kind is not GroundKind.FREE,
+                         ant.wire_conductivity_s_per_m, self.mid_factor,
+                         coating_h_per_m(ant.radius_m, ant.outer_radius_m, ant.insulation_eps))
         ports = [mesh.ports[FedEnd.A], mesh.ports[FedEnd.B]]
         rhs = port_excitation(mesh.n_unknowns, ports)
-        zs = np.stack([op.matrix(f, image_depth_shift_m(self.ground, f),
-                                  quasi_static_image_coefficient(self.ground, f))
-                        for f in freqs])
+        zs = np.stack([op.matrix(f) for f in freqs] if ground.kind is not GroundKind.REAL
+                      else self._half_space_matrices(op, ground, freqs))
+        r_stake = self.stake_ohm()
+        for node in mesh.ground_nodes:     # the node's wires share one earth connection
+            zs[:, np.array(node)[:, None], np.array(node)[None, :]] += r_stake
         cur = np.linalg.solve(zs, np.broadcast_to(rhs, zs.shape[:1] + rhs.shape))
         y = cur[:, ports, :]
         seg = np.moveaxis(mesh.segment_currents(np.moveaxis(cur, 0, 1)), 2, 0)
+        notes = ant.notes + tuple(passivity_warnings(freqs, y))
         return PortSolution(freqs_hz=freqs, y_siemens=y, seg_currents=seg, mesh=mesh,
-                            ground=self.ground, feed=self.feed,
-                            end_a_bearing_deg=self.antenna.end_a_bearing_deg)
+                            ground=ground, feed=self.feed,
+                            end_a_bearing_deg=ant.end_a_bearing_deg, notes=notes)
+
+
+    @staticmethod
+    def _half_space_matrices(op: MomOperator, ground: GroundSpec, freqs: np.ndarray
+                             ) -> list[np.ndarray]:
+        """The matrices over a lossy half-space: one Sommerfeld table per frequency."""
+        fill = op.half_space(2.0 * np.pi * float(np.max(freqs)) / C0_M_PER_S)
+        lo, hi = fill.r_range_m
+        return [op.matrix(f, half_space_table(ground, f, lo, hi, fill.zeta_min_m))
+                for f in freqs]
+
+
+def passivity_warnings(freqs_hz: np.ndarray, y_siemens: np.ndarray) -> list[str]:
+    """A warning for each frequency where the two-port is not passive.
+
+    A passive two-port has a positive semi-definite Hermitian part of Z (every
+    termination absorbs power; circuit theory, common practice). A negative eigenvalue
+    means the ground model has gone outside what it can do.
+    """
+    z = np.linalg.inv(y_siemens)
+    herm = 0.5 * (z + np.conj(np.swapaxes(z, 1, 2)))
+    lo = np.linalg.eigvalsh(herm)[:, 0]
+    scale = np.max(np.abs(z), axis=(1, 2))
+    bad = np.nonzero(lo < -1e-7 * scale)[0]
+    if bad.size == 0:
+        return []
+    return [f"the two-port is not passive at {freqs_hz[bad[0]] / 1e6:g} MHz (Re Z eigenvalue "
+            f"{lo[bad[0]]:.3g} Ω) in {bad.size} of {len(freqs_hz)} frequencies: the "
+            "near-ground model is outside its validity; do not trust these figures"]

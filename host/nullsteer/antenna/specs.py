@@ -9,6 +9,18 @@ Sections and keys (SI units unless the key says otherwise)
     ``segments_per_wire``   0 (default): chosen from the rules of thumb; N > 0: N segments
                             on every straight piece
     ``wire_conductivity_s_per_m``  0 (default): lossless wire; e.g. 5.8e7 for copper
+    ``insulation_mm``       thickness of the wire's insulation (default 0: bare wire; a
+                            typical PVC-insulated hook-up or house wire has 0.6–0.8 mm)
+    ``insulation_eps``      relative permittivity of the insulation (default 3.5, PVC;
+                            from memory: PVC is 3–5 at HF)
+
+A wire resting on the soil (``bottom_m = 0``, or polyline points at height 0) has its
+axis at its outer radius (conductor radius plus insulation); any wire lower than that is
+lifted to it, with a warning. Only the vertices listed in ``ground_points_m`` (polylines:
+points ``[along_m, across_m, 0]`` of the loop frame where a wire end goes into the soil)
+connect to the ground, each through a stake: ``stake_ohm`` (a measured value) or
+Dwight's rod formula from ``stake_length_m`` (default 1.0) and ``stake_diameter_mm``
+(default 16) and the ground's conductivity.
 
 rectangle (ground-level loop, flag): ``length_m`` (horizontal, end A side to end B side),
 ``height_m`` (top wire above ground), ``bottom_m`` (bottom wire above ground) and
@@ -29,8 +41,12 @@ height: above ground); points shared between polylines join there (junction);
 ``closed`` = list of booleans (default: every polyline closed); ``end_a_point_m`` and
 ``end_b_point_m`` = the vertices (same frame) where the two ports sit.
 
+``termination`` (optional): the resistor now on the loop, ohms, or "short" / "open"; the
+model then reports the loop at that termination as well as the optimum.
+
 ``[ground]``: ``kind`` free | perfect | real (default real); for real ``conductivity_s_per_m`` (default
-0.005) and ``permittivity`` (default 13, "average" ground of the ARRL table).
+0.005) and ``permittivity`` (default 13, "average" ground of the ARRL table), or
+``preset`` = one of :data:`SOIL_PRESETS` (ITU-R P.527 ground categories) instead of the two.
 
 ``[band]``: ``freqs_mhz`` ("start:stop:step", a number or a list); ``elevation_deg``: a
 number (one elevation), ``[lo, hi]`` (a span, sampled every ``elevation_step_deg``,
@@ -68,6 +84,19 @@ class GroundKind(enum.Enum):
     REAL = "real"
 
 
+#: Relative permittivity of PVC insulation (from memory: 3–5 at HF; 3.5 taken).
+PVC_EPS = 3.5
+
+
+@dataclass(frozen=True)
+class StakeSpec:
+    """The earth connection of a ground point: a measured resistance, or a driven rod."""
+
+    resistance_ohm: float | None = None
+    length_m: float = 1.0
+    diameter_m: float = 0.016
+
+
 @dataclass(frozen=True)
 class AntennaSpec:
     """Loop geometry in the loop's own frame (see the module docstring for the keys).
@@ -86,10 +115,21 @@ class AntennaSpec:
     end_a_bearing_deg: float = 0.0
     segments_per_wire: int = 0
     wire_conductivity_s_per_m: float = 0.0
+    insulation_m: float = 0.0
+    insulation_eps: float = PVC_EPS
+    ground_points: tuple[tuple[float, float, float], ...] = ()
+    stake: StakeSpec | None = None
+    notes: tuple[str, ...] = ()
+    termination_ohm: float | None = None
 
     @property
     def radius_m(self) -> float:
         return self.wire_diameter_m / 2.0
+
+    @property
+    def outer_radius_m(self) -> float:
+        """Conductor radius plus insulation: the axis height of a wire lying on the soil."""
+        return self.wire_diameter_m / 2.0 + self.insulation_m
 
 
 @dataclass(frozen=True)
@@ -123,11 +163,12 @@ class FeedSpec:
 
 
 _COMMON = {"shape", "wire_diameter_mm", "end_a_bearing_deg", "segments_per_wire",
-           "wire_conductivity_s_per_m"}
+           "wire_conductivity_s_per_m", "insulation_mm", "insulation_eps", "termination"}
 _RECT = {"length_m", "height_m", "bottom_m", "port_position"}
 _TRI = {"length_m", "base_height_m", "apex_height_m", "apex_offset_m", "end_a_corner",
         "end_b_corner"}
-_POLY = {"polylines", "closed", "end_a_point_m", "end_b_point_m"}
+_POLY = {"polylines", "closed", "end_a_point_m", "end_b_point_m", "ground_points_m",
+         "stake_ohm", "stake_length_m", "stake_diameter_mm"}
 _W = "antenna"
 
 
@@ -189,9 +230,9 @@ MAX_EXTENT_M = 1000.0
 def _parse_triangle(t: dict[str, Any]):
     length = get_float(t, "length_m", _W, minimum=0.0, exclusive_min=True,
                        maximum=MAX_EXTENT_M)
-    base_h = get_float(t, "base_height_m", _W, minimum=0.0, exclusive_min=True,
+    base_h = get_float(t, "base_height_m", _W, minimum=0.0,
                        maximum=MAX_EXTENT_M)
-    apex_h = get_float(t, "apex_height_m", _W, minimum=0.0, exclusive_min=True,
+    apex_h = get_float(t, "apex_height_m", _W, minimum=0.0,
                        maximum=MAX_EXTENT_M)
     offset = get_float(t, "apex_offset_m", _W, default=0.0, minimum=-length / 2,
                        maximum=length / 2)
@@ -224,7 +265,7 @@ def parse_antenna(table: dict[str, Any]) -> AntennaSpec:
                            maximum=MAX_EXTENT_M)
         height = get_float(table, "height_m", _W, minimum=0.0, exclusive_min=True,
                            maximum=MAX_EXTENT_M)
-        bottom = get_float(table, "bottom_m", _W, minimum=0.0, exclusive_min=True,
+        bottom = get_float(table, "bottom_m", _W, minimum=0.0,
                            maximum=MAX_EXTENT_M)
         if bottom >= height:
             raise ConfigError(f"{_W}.bottom_m", f"must be below height_m ({height:g}), "
@@ -240,16 +281,125 @@ def parse_antenna(table: dict[str, Any]) -> AntennaSpec:
         for p in line:
             if p[2] < 0.0:
                 raise ConfigError(f"{_W}.polylines[{i}]", f"point {list(p)} is below ground")
+    ins_mm = get_float(table, "insulation_mm", _W, default=0.0, minimum=0.0, maximum=50.0)
+    ins_eps = get_float(table, "insulation_eps", _W, default=PVC_EPS, minimum=1.0,
+                        maximum=100.0)
+    grounds, stake = _parse_ground_points(table, lines) if shape is Shape.POLYLINES else ((), None)
+    outer = diameter_mm * 5e-4 + ins_mm * 1e-3
+    lines, ea, eb, notes = _rest_on_soil(lines, ea, eb, grounds, outer)
     return AntennaSpec(shape=shape, polylines=lines, closed=closed, end_a_m=ea, end_b_m=eb,
                        wire_diameter_m=diameter_mm * 1e-3, end_a_bearing_deg=bearing,
-                       segments_per_wire=nseg, wire_conductivity_s_per_m=sigma)
+                       segments_per_wire=nseg, wire_conductivity_s_per_m=sigma,
+                       insulation_m=ins_mm * 1e-3, insulation_eps=ins_eps,
+                       ground_points=grounds, stake=stake, notes=notes,
+                       termination_ohm=parse_termination(table.get("termination"),
+                                                         f"{_W}.termination"))
+
+
+def parse_termination(value: Any, key: str) -> float | None:
+    """A termination: ohms (≥ 0), "short" (0) or "open" (inf); None when absent.
+
+    Strings holding a number (a command-line value) are read as ohms.
+    """
+    if value is None:
+        return None
+    if isinstance(value, str):
+        word = value.strip().lower()
+        if word == "short":
+            return 0.0
+        if word == "open":
+            return math.inf
+        try:
+            value = float(word)
+        except ValueError:
+            raise ConfigError(key, f"must be ohms, short or open; got {value!r}") from None
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise ConfigError(key, f"must be ohms, short or open; got {value!r}")
+    r = float(value)
+    if not (math.isfinite(r) and r >= 0.0):
+        raise ConfigError(key, f"must be a finite resistance >= 0 ohms, short or open; got {value!r}")
+    return r
+
+
+def _parse_ground_points(t: dict[str, Any], lines) -> tuple[tuple, StakeSpec | None]:
+    """``ground_points_m`` (vertices at height 0 that go into the soil) and their stake."""
+    key = f"{_W}.ground_points_m"
+    raw = t.get("ground_points_m", [])
+    if not isinstance(raw, list):
+        raise ConfigError(key, "must be a list of points [along_m, across_m, 0]")
+    verts = {p for line in lines for p in line}
+    pts = []
+    for j, v in enumerate(raw):
+        p = _point(v, f"{key}[{j}]")
+        if p[2] != 0.0:
+            raise ConfigError(f"{key}[{j}]", f"a ground point sits on the soil (height 0), "
+                              f"got {p[2]:g} m")
+        if p not in verts:
+            raise ConfigError(f"{key}[{j}]", f"point {list(p)} is not a polyline vertex")
+        pts.append(p)
+    stake_keys = ("stake_ohm", "stake_length_m", "stake_diameter_mm")
+    if not pts:
+        for k in stake_keys:
+            if k in t:
+                raise ConfigError(f"{_W}.{k}", "needs ground_points_m")
+        return (), None
+    r = get_float(t, "stake_ohm", _W, minimum=0.0) if "stake_ohm" in t else None
+    length = get_float(t, "stake_length_m", _W, default=1.0, minimum=0.0, exclusive_min=True,
+                       maximum=100.0)
+    dia = get_float(t, "stake_diameter_mm", _W, default=16.0, minimum=0.0, exclusive_min=True,
+                    maximum=1000.0)
+    return tuple(pts), StakeSpec(resistance_ohm=r, length_m=length, diameter_m=dia * 1e-3)
+
+
+def _rest_on_soil(lines, ea, eb, grounds, outer_m: float):
+    """Lift every vertex lower than the wire's outer radius (ground points excepted) to it.
+
+    A wire cannot sink into the soil: its axis rests at least one outer radius above it.
+    """
+    keep = set(grounds)
+    lifted: list[float] = []
+
+    def lift(p):
+        if p in keep or p[2] >= outer_m:
+            return p
+        lifted.append(p[2])
+        return (p[0], p[1], outer_m)
+
+    lines = tuple(tuple(lift(p) for p in line) for line in lines)
+    ea, eb = lift(ea), lift(eb)
+    notes: tuple[str, ...] = ()
+    if any(h > 0 for h in lifted):
+        notes = (f"wire below its outer radius ({outer_m * 1e3:.2g} mm) lifted to rest on "
+                 "the soil",)
+    return lines, ea, eb, notes
+
+
+#: Ground categories named as ITU-R P.527 names them: (conductivity S/m, εr). Values from
+#: memory of the Recommendation's curves at about 1 MHz (the same pairs head the ground-
+#: wave curves of ITU-R P.368); not read from the curves here.
+SOIL_PRESETS: dict[str, tuple[float, float]] = {
+    "sea-water": (5.0, 70.0),
+    "fresh-water": (3e-3, 80.0),
+    "wet-ground": (1e-2, 30.0),
+    "medium-dry": (1e-3, 15.0),
+    "very-dry": (1e-4, 3.0),
+}
 
 
 def parse_ground(table: dict[str, Any]) -> GroundSpec:
     """Parse the ``[ground]`` table; bad or unknown keys raise ConfigError."""
-    check_unknown(table, {"kind", "conductivity_s_per_m", "permittivity"}, "ground")
+    check_unknown(table, {"kind", "conductivity_s_per_m", "permittivity", "preset"}, "ground")
     kind = GroundKind(get_str(table, "kind", "ground", default="real",
                               choices=tuple(k.value for k in GroundKind)))
+    if "preset" in table:
+        name = get_str(table, "preset", "ground", choices=tuple(SOIL_PRESETS))
+        for k in ("conductivity_s_per_m", "permittivity"):
+            if k in table:
+                raise ConfigError(f"ground.{k}", "cannot be combined with ground.preset")
+        if kind is not GroundKind.REAL:
+            raise ConfigError("ground.preset", f"needs kind real, got {kind.value!r}")
+        sigma_p, eps_p = SOIL_PRESETS[name]
+        return GroundSpec(kind=kind, conductivity_s_per_m=sigma_p, permittivity=eps_p)
     sigma = get_float(table, "conductivity_s_per_m", "ground", default=0.005, minimum=0.0,
                       maximum=1e8)
     eps = get_float(table, "permittivity", "ground", default=13.0, minimum=1.0, maximum=200.0)

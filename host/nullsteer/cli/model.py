@@ -5,12 +5,18 @@ Either from a station file (``--config station.toml``: sections [antenna], [grou
 --bottom --wire-mm --ground --sigma --eps``). ``--freq`` and ``--elevation`` override the
 band. With one elevation, ``r_opt_ohm`` maximises F/B there; with a span it maximises the
 ratio of the forward to the backward power summed over the span's elevations.
+``--termination OHMS|short|open`` (or ``[antenna].termination``) evaluates the loop at that
+termination instead of at the optimum (the optimum is still reported). ``--soil NAME``
+takes σ and εr from an ITU-R P.527 ground category. Warnings (validity, a loop too large
+for one rear null) go to stderr and into the ``warnings`` list of ``--json``, whose numbers
+are always finite (null where undefined, e.g. an open termination's ohms).
 """
 
 from __future__ import annotations
 
 import argparse
 import sys
+from dataclasses import replace
 
 import numpy as np
 
@@ -19,12 +25,16 @@ from nullsteer.antenna.metrics import NULL_DEPTH_CEILING_DB, azimuth_pattern, nu
 from nullsteer.antenna.needed import needed_range
 from nullsteer.antenna.ports import LoopModel
 from nullsteer.antenna.station import station_loop
-from nullsteer.antenna.specs import (BandSpec, parse_antenna, parse_elevations_deg, parse_feed, parse_ground)
+from nullsteer.antenna.specs import (SOIL_PRESETS, BandSpec, parse_antenna,
+                                     parse_elevations_deg, parse_feed, parse_ground,
+                                     parse_termination)
+from nullsteer.antenna.validity import single_null_warnings
 from nullsteer.cli.common import add_json_flag, print_json
 from nullsteer.station.config import load_station, parse_freqs_mhz
 from nullsteer.errors import ConfigError
 
-_QUICK = ("length", "height", "bottom", "wire_mm", "ground", "sigma", "eps", "bearing")
+_QUICK = ("length", "height", "bottom", "wire_mm", "ground", "sigma", "eps", "bearing", "soil",
+          "insulation_mm")
 
 
 def register(subparsers) -> None:
@@ -39,6 +49,11 @@ def register(subparsers) -> None:
                    help="ground under the loop (quick form; default real)")
     p.add_argument("--sigma", type=float, help="ground conductivity, S/m (real ground)")
     p.add_argument("--eps", type=float, help="ground relative permittivity (real ground)")
+    p.add_argument("--soil", choices=tuple(SOIL_PRESETS),
+                   help="ground category (ITU-R P.527 names) instead of --sigma/--eps")
+    p.add_argument("--insulation-mm", dest="insulation_mm", type=float,
+                   help="wire insulation thickness, mm (PVC, εr 3.5)")
+    p.add_argument("--termination", help="evaluate at this termination: ohms, short or open")
     p.add_argument("--bearing", type=float, help="compass bearing toward end A, degrees")
     p.add_argument("--freq", help="MHz, or start:stop:step")
     p.add_argument("--elevation", help="degrees, or lo:hi[:step] span")
@@ -56,8 +71,11 @@ def _quick_specs(args):
              "bottom_m": args.bottom if args.bottom is not None else 1.8,
              "wire_diameter_mm": args.wire_mm if args.wire_mm is not None else 1.6,
              "end_a_bearing_deg": args.bearing if args.bearing is not None else 0.0}
+    if args.insulation_mm is not None:
+        table["insulation_mm"] = args.insulation_mm
     flags = {"length_m": "--length", "height_m": "--height", "bottom_m": "--bottom",
-             "wire_diameter_mm": "--wire-mm", "end_a_bearing_deg": "--bearing"}
+             "wire_diameter_mm": "--wire-mm", "end_a_bearing_deg": "--bearing",
+             "insulation_mm": "--insulation-mm"}
     try:
         antenna = parse_antenna(table)
     except ConfigError as exc:
@@ -67,10 +85,13 @@ def _quick_specs(args):
         g["conductivity_s_per_m"] = args.sigma
     if args.eps is not None:
         g["permittivity"] = args.eps
+    if args.soil is not None:
+        g["preset"] = args.soil
     try:
         ground = parse_ground(g)
     except ConfigError as exc:
-        key = {"ground.conductivity_s_per_m": "--sigma", "ground.permittivity": "--eps"}
+        key = {"ground.conductivity_s_per_m": "--sigma", "ground.permittivity": "--eps",
+               "ground.preset": "--soil"}
         raise ConfigError(key.get(exc.key, "--ground"), exc.message) from None
     band = BandSpec(freqs_hz=(1.83e6,), elevations_deg=parse_elevations_deg(
         [10.0, 60.0], "--elevation"))
@@ -96,34 +117,76 @@ def load_specs(args):
         els = parse_elevations_deg(args.elevation, "--elevation")
     if len(freqs) > 2000:
         raise ConfigError("--freq", f"{len(freqs)} frequencies is too many (at most 2000)")
+    if args.termination is not None:
+        antenna = replace(antenna, termination_ohm=parse_termination(args.termination,
+                                                                     "--termination"))
     return antenna, ground, BandSpec(freqs_hz=freqs, elevations_deg=els), feed
 
 
-def compute(antenna, ground, band, feed, fed_end: FedEnd) -> dict:
-    """The JSON report of ``nullsteer model`` (also used by the human table)."""
-    sol = LoopModel(antenna, ground, feed).solve(np.array(band.freqs_hz))
+def finite_or_none(value):
+    """``value`` with every non-finite float replaced by None (JSON has no NaN/Infinity)."""
+    if isinstance(value, dict):
+        return {k: finite_or_none(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [finite_or_none(v) for v in value]
+    if isinstance(value, (float, np.floating)):
+        return float(value) if np.isfinite(value) else None
+    return value
+
+
+def _termination_label(r: float | None) -> dict:
+    if r is None:
+        return {"kind": "optimum", "ohm": None}
+    if r == 0:
+        return {"kind": "short", "ohm": 0.0}
+    if np.isinf(r):
+        return {"kind": "open", "ohm": None}
+    return {"kind": "resistor", "ohm": r}
+
+
+def compute(antenna, ground, band, feed, fed_end: FedEnd, freq_key: str = "band.freqs_mhz"
+            ) -> dict:
+    """The JSON report of ``nullsteer model`` (also used by the human table).
+
+    The figures are at ``antenna.termination_ohm`` when it is set, else at the optimum.
+    A model too large for the budget raises ConfigError naming ``freq_key``.
+    """
+    try:
+        sol = LoopModel(antenna, ground, feed).solve(np.array(band.freqs_hz))
+    except ConfigError as exc:
+        if exc.key == "band.freqs_mhz":
+            raise ConfigError(freq_key, exc.message) from None
+        raise
     els = np.array(band.elevations_deg)
     r_opt = sol.optimum_termination_ohm(fed_end, els)
     r_each = sol.optimum_termination_ohm(fed_end, els, each=True)
     fb_each = np.stack([sol.fb_db(r_each[:, j], fed_end, e) for j, e in enumerate(els)], 1)
     front, back = sol.axis_bearings_deg(fed_end)
-    gf = sol.gain(r_opt, fed_end, front, els).sum(-1)
-    gb = sol.gain(r_opt, fed_end, back, els).sum(-1)
-    fb_span = 10 * np.log10(gf / np.maximum(gb, 1e-300))
-    zfeed = sol.feed_impedance_ohm(r_opt, fed_end)
-    rdf = sol.rdf_db(r_opt, fed_end)
+
+    def span_fb(r):
+        gf = sol.gain(r, fed_end, front, els).sum(-1)
+        gb = sol.gain(r, fed_end, back, els).sum(-1)
+        return 10 * np.log10(np.maximum(gf, 1e-300) / np.maximum(gb, 1e-300))
+
+    fb_opt = span_fb(r_opt)
+    r_eval = r_opt if antenna.termination_ohm is None else np.full(r_opt.shape,
+                                                                   antenna.termination_ohm)
+    fb_span = span_fb(r_eval)
+    zfeed = sol.feed_impedance_ohm(r_eval, fed_end)
+    rdf = sol.rdf_db(r_eval, fed_end)
     mid_el = float(els[len(els) // 2])
-    az, pat = azimuth_pattern(sol, r_opt, fed_end, mid_el)
+    az, pat = azimuth_pattern(sol, r_eval, fed_end, mid_el)
     null = null_of(az, pat[:, 0])
-    gain_front = sol.gain_dbi(r_opt, fed_end, front, mid_el)
-    realized = sol.gain_dbi(r_opt, fed_end, front, mid_el, realized=True)
-    loss = sol.termination_loss_fraction(r_opt, fed_end)
+    gain_front = sol.gain_dbi(r_eval, fed_end, front, mid_el)
+    realized = sol.gain_dbi(r_eval, fed_end, front, mid_el, realized=True)
+    loss = sol.termination_loss_fraction(r_eval, fed_end)
     nr = needed_range(sol, tuple(els) if len(els) > 2 else (els.min(), els.max()),
                       fed_ends=(FedEnd.A, FedEnd.B))
     rows = []
     for i, f in enumerate(sol.freqs_hz):
         rows.append({
-            "freq_mhz": f / 1e6, "r_opt_ohm": float(r_opt[i]), "fb_db": float(fb_span[i]),
+            "freq_mhz": f / 1e6, "r_opt_ohm": float(r_opt[i]),
+            "fb_db_at_r_opt": float(fb_opt[i]), "fb_db": float(fb_span[i]),
             "feed_impedance_ohm": [float(zfeed[i].real), float(zfeed[i].imag)],
             "rdf_db": float(rdf[i]), "gain_front_dbi": float(gain_front[i]),
             "realized_gain_front_dbi": float(realized[i]),
@@ -133,41 +196,59 @@ def compute(antenna, ground, band, feed, fed_end: FedEnd) -> dict:
             "by_elevation": [{"elevation_deg": float(e), "r_opt_ohm": float(r_each[i, j]),
                               "fb_db_at_r_opt": float(fb_each[i, j])}
                              for j, e in enumerate(els)]})
+    warnings = list(sol.warnings) + single_null_warnings(sol.freqs_hz, fb_opt)
     return {"fed_end": fed_end.value, "null_toward_deg": null_bearing_deg(
                 fed_end, antenna.end_a_bearing_deg),
+            "termination": _termination_label(antenna.termination_ohm),
             "elevations_deg": [float(e) for e in els], "pattern_elevation_deg": mid_el,
             "segments": sol.mesh.n_segments, "unknowns": sol.mesh.n_unknowns,
             "frequencies": rows, "needed_range_ohm": [nr.lo_ohm, nr.hi_ohm],
             "fb_loss_db_per_pct": nr.fb_loss_db_per_pct,
             "loss_curve_db": {f"{k:g}": v for k, v in nr.loss_curve_db.items()},
-            "warnings": list(sol.warnings)}
+            "warnings": warnings}
+
+
+def _num(v, fmt: str, width: int) -> str:
+    """A number for the table; None (undefined) and open (inf) print as words."""
+    if v is None or (isinstance(v, float) and np.isnan(v)):
+        return f"{'—':>{width}}"
+    if isinstance(v, float) and np.isinf(v):
+        return f"{'open':>{width}}"
+    sign = "+" if fmt.startswith("+") else ""
+    return f"{v:{sign}{width}{fmt.lstrip('+')}}"
 
 
 def _print_table(rep: dict) -> None:
     els = rep["elevations_deg"]
     span = f"{els[0]:g}°" if len(els) == 1 else f"{els[0]:g}–{els[-1]:g}°"
+    term = rep["termination"]
+    at = {"optimum": "at the optimum termination", "short": "termination shorted",
+          "open": "termination open"}.get(term["kind"]) or f"at {term['ohm']:g} Ω"
     print(f"fed end {rep['fed_end']}, null toward {rep['null_toward_deg']:.0f}°, "
-          f"elevation {span}, {rep['unknowns']} unknowns")
+          f"elevation {span}, {rep['unknowns']} unknowns; figures {at}")
     print(f"{'MHz':>8} {'R_opt Ω':>9} {'F/B dB':>7} {'Zfeed Ω':>18} {'RDF dB':>7} "
           f"{'G dBi':>7} {'null °':>7} {'depth dB':>8}")
     for r in rep["frequencies"]:
         z = r["feed_impedance_ohm"]
-        print(f"{r['freq_mhz']:8.3f} {r['r_opt_ohm']:9.0f} {r['fb_db']:7.1f} "
-              f"{z[0]:8.0f}{z[1]:+9.0f}j {r['rdf_db']:7.2f} {r['gain_front_dbi']:7.1f} "
-              f"{r['null_bearing_deg']:7.0f} {r['null_depth_db']:8.1f}")
+        print(f"{r['freq_mhz']:8.3f} {_num(r['r_opt_ohm'], '.0f', 9)} "
+              f"{_num(r['fb_db'], '.1f', 7)} {_num(z[0], '.0f', 8)}{_num(z[1], '+.0f', 9)}j "
+              f"{_num(r['rdf_db'], '.2f', 7)} {_num(r['gain_front_dbi'], '.1f', 7)} "
+              f"{_num(r['null_bearing_deg'], '.0f', 7)} {_num(r['null_depth_db'], '.1f', 8)}")
     lo, hi = rep["needed_range_ohm"]
-    print(f"needed termination range (both fed ends, all elevations): {lo:.0f}–{hi:.0f} Ω; "
+    print(f"needed termination range (both fed ends, all elevations): "
+          f"{_num(lo, '.0f', 0)}–{_num(hi, '.0f', 0)} Ω; "
           f"F/B lost ≈ {rep['fb_loss_db_per_pct']:.2f} dB per % of error "
           f"(nulls deeper than {NULL_DEPTH_CEILING_DB:g} dB not counted)")
-    for w in rep["warnings"]:
-        print(f"warning: {w}", file=sys.stderr)
 
 
 def run(args: argparse.Namespace) -> int:
     antenna, ground, band, feed = load_specs(args)
-    rep = compute(antenna, ground, band, feed, FedEnd(args.fed_end))
+    freq_key = "--freq" if args.freq is not None else "band.freqs_mhz"
+    rep = compute(antenna, ground, band, feed, FedEnd(args.fed_end), freq_key)
+    for w in rep["warnings"]:
+        print(f"warning: {w}", file=sys.stderr)
     if args.json:
-        print_json(rep)
+        print_json(finite_or_none(rep))
     else:
         _print_table(rep)
     return 0
