@@ -1,60 +1,9 @@
 """Typed specs of the station sections the antenna model reads, and their parsers.
 
-Sections and keys (SI units unless the key says otherwise)
-----------------------------------------------------------
-``[antenna]`` common keys:
-    ``shape``               "rectangle" | "triangle" | "polylines"
-    ``wire_diameter_mm``    conductor diameter (default 1.6)
-    ``end_a_bearing_deg``   compass bearing from the loop centre toward end A (default 0)
-    ``segments_per_wire``   0 (default): chosen from the rules of thumb; N > 0: N segments
-                            on every straight piece
-    ``wire_conductivity_s_per_m``  0 (default): lossless wire; e.g. 5.8e7 for copper
-    ``insulation_mm``       thickness of the wire's insulation (default 0: bare wire; a
-                            typical PVC-insulated hook-up or house wire has 0.6–0.8 mm)
-    ``insulation_eps``      relative permittivity of the insulation (default 3.5, PVC;
-                            from memory: PVC is 3–5 at HF)
-
-A wire resting on the soil (``bottom_m = 0``, or polyline points at height 0) has its
-axis at its outer radius (conductor radius plus insulation); any wire lower than that is
-lifted to it, with a warning. Only the vertices listed in ``ground_points_m`` (polylines:
-points ``[along_m, across_m, 0]`` of the loop frame where a wire end goes into the soil)
-connect to the ground, each through a stake: ``stake_ohm`` (a measured value) or
-Dwight's rod formula from ``stake_length_m`` (default 1.0) and ``stake_diameter_mm``
-(default 16) and the ground's conductivity.
-
-rectangle (ground-level loop, flag): ``length_m`` (horizontal, end A side to end B side),
-``height_m`` (top wire above ground), ``bottom_m`` (bottom wire above ground) and
-``port_position`` = "bottom" (default: feed and termination at the bottom corners of the
-end A / end B vertical sides) | "middle" (at the middle of those sides).
-
-triangle (pennant, delta): ``length_m`` (horizontal side, end A corner to end B corner),
-``base_height_m`` (height of that horizontal side), ``apex_height_m`` (third corner; above
-or below the horizontal side), ``apex_offset_m`` (horizontal position of the apex along the
-axis from the centre, positive toward end A; 0 = symmetric delta, ±length_m/2 = right
-triangle), and ``end_a_corner`` / ``end_b_corner`` = "base_a" | "base_b" | "apex" (defaults
-"base_a" and "base_b": the corners of the horizontal side toward end A and end B).
-
-polylines (anything else): ``polylines`` = list of point lists, each point
-``[along_m, across_m, height_m]`` in the loop's own frame (along: on the axis, positive
-toward end A; across: horizontal, 90° clockwise of end A's bearing seen from above;
-height: above ground); points shared between polylines join there (junction);
-``closed`` = list of booleans (default: every polyline closed); ``end_a_point_m`` and
-``end_b_point_m`` = the vertices (same frame) where the two ports sit.
-
-``termination`` (optional): the resistor now on the loop, ohms, or "short" / "open"; the
-model then reports the loop at that termination as well as the optimum.
-
-``[ground]``: ``kind`` free | perfect | real (default real); for real ``conductivity_s_per_m`` (default
-0.005) and ``permittivity`` (default 13, "average" ground of the ARRL table), or
-``preset`` = one of :data:`SOIL_PRESETS` (ITU-R P.527 ground categories) instead of the two.
-
-``[band]``: ``freqs_mhz`` ("start:stop:step", a number or a list); ``elevation_deg``: a
-number (one elevation), ``[lo, hi]`` (a span, sampled every ``elevation_step_deg``,
-default 5), a "lo:hi:step" string, or a list of three or more elevations.
-
-``[feed]``: ``transformer_ratio`` (antenna-side over line-side impedance, default 9),
-``receiver_ohm`` (50), ``coax_z0_ohm`` (50), ``coax_velocity_factor`` (0.66),
-``coax_loss_db_per_100m_at_10mhz`` (4.0), ``coax_length_m`` (0: no line).
+The keys of ``[antenna]``, ``[ground]``, ``[band]`` and ``[feed]`` (types, units,
+defaults, ranges, meaning) are described once, in :mod:`nullsteer.antenna.sections`, and
+read through those descriptions here; ``docs/station-file.md`` is generated from them.
+Geometry is converted to polylines in the loop's own frame (see :class:`AntennaSpec`).
 """
 
 from __future__ import annotations
@@ -67,8 +16,9 @@ from typing import Any
 import numpy as np
 
 from nullsteer.antenna.feedline import Coax
-from nullsteer.station.config import (check_unknown, get_float, get_int, get_str,
-                              parse_freqs_mhz)
+from nullsteer.antenna.sections import (ANTENNA, BAND, COMMON_KEYS, FEED, GROUND, MAX_EXTENT_M,
+                                        POLYLINE_KEYS, PVC_EPS, RECTANGLE_KEYS, TRIANGLE_KEYS)
+from nullsteer.station.config import check_unknown, parse_freqs_mhz
 from nullsteer.errors import ConfigError
 
 
@@ -82,10 +32,6 @@ class GroundKind(enum.Enum):
     FREE = "free"
     PERFECT = "perfect"
     REAL = "real"
-
-
-#: Relative permittivity of PVC insulation (from memory: 3–5 at HF; 3.5 taken).
-PVC_EPS = 3.5
 
 
 @dataclass(frozen=True)
@@ -162,14 +108,8 @@ class FeedSpec:
     coax: Coax | None = None
 
 
-_COMMON = {"shape", "wire_diameter_mm", "end_a_bearing_deg", "segments_per_wire",
-           "wire_conductivity_s_per_m", "insulation_mm", "insulation_eps", "termination"}
-_RECT = {"length_m", "height_m", "bottom_m", "port_position"}
-_TRI = {"length_m", "base_height_m", "apex_height_m", "apex_offset_m", "end_a_corner",
-        "end_b_corner"}
-_POLY = {"polylines", "closed", "end_a_point_m", "end_b_point_m", "ground_points_m",
-         "stake_ohm", "stake_length_m", "stake_diameter_mm"}
 _W = "antenna"
+_SHAPE_KEYS = {"rectangle": RECTANGLE_KEYS, "triangle": TRIANGLE_KEYS, "polylines": POLYLINE_KEYS}
 
 
 def rectangle_polyline(length_m: float, height_m: float, bottom_m: float,
@@ -222,26 +162,17 @@ def _parse_polylines(t: dict[str, Any]):
     return tuple(lines), tuple(closed_raw), ends[0], ends[1]
 
 
-#: The largest extent (length, height) of a loop, metres: far beyond any receiving loop,
-#: small enough that the segment count cannot overflow before the memory guard.
-MAX_EXTENT_M = 1000.0
-
-
 def _parse_triangle(t: dict[str, Any]):
-    length = get_float(t, "length_m", _W, minimum=0.0, exclusive_min=True,
-                       maximum=MAX_EXTENT_M)
-    base_h = get_float(t, "base_height_m", _W, minimum=0.0,
-                       maximum=MAX_EXTENT_M)
-    apex_h = get_float(t, "apex_height_m", _W, minimum=0.0,
-                       maximum=MAX_EXTENT_M)
-    offset = get_float(t, "apex_offset_m", _W, default=0.0, minimum=-length / 2,
-                       maximum=length / 2)
+    length = ANTENNA.get(t, "length_m", _W)
+    base_h = ANTENNA.get(t, "base_height_m", _W)
+    apex_h = ANTENNA.get(t, "apex_height_m", _W)
+    offset = ANTENNA.get(t, "apex_offset_m", _W, minimum=-length / 2, maximum=length / 2)
     if abs(apex_h - base_h) < 1e-3:
         raise ConfigError(f"{_W}.apex_height_m", "must differ from base_height_m")
     corners = {"base_a": (length / 2, 0.0, base_h), "base_b": (-length / 2, 0.0, base_h),
                "apex": (offset, 0.0, apex_h)}
-    ca = get_str(t, "end_a_corner", _W, default="base_a", choices=tuple(corners))
-    cb = get_str(t, "end_b_corner", _W, default="base_b", choices=tuple(corners))
+    ca = ANTENNA.get(t, "end_a_corner", _W)
+    cb = ANTENNA.get(t, "end_b_corner", _W)
     if ca == cb:
         raise ConfigError(f"{_W}.end_b_corner", f"must differ from end_a_corner ({ca!r})")
     pts = (corners["base_a"], corners["apex"], corners["base_b"])
@@ -250,27 +181,20 @@ def _parse_triangle(t: dict[str, Any]):
 
 def parse_antenna(table: dict[str, Any]) -> AntennaSpec:
     """Parse the ``[antenna]`` table; bad or unknown keys raise ConfigError."""
-    shape = Shape(get_str(table, "shape", _W, default="rectangle",
-                          choices=tuple(s.value for s in Shape)))
-    extra = {Shape.RECTANGLE: _RECT, Shape.TRIANGLE: _TRI, Shape.POLYLINES: _POLY}[shape]
-    check_unknown(table, _COMMON | extra, _W)
-    diameter_mm = get_float(table, "wire_diameter_mm", _W, default=1.6, minimum=0.0,
-                            exclusive_min=True, maximum=100.0)
-    bearing = get_float(table, "end_a_bearing_deg", _W, default=0.0, minimum=-360.0,
-                        maximum=360.0) % 360.0
-    nseg = get_int(table, "segments_per_wire", _W, default=0, minimum=0, maximum=400)
-    sigma = get_float(table, "wire_conductivity_s_per_m", _W, default=0.0, minimum=0.0)
+    shape = Shape(ANTENNA.get(table, "shape", _W))
+    check_unknown(table, set(COMMON_KEYS) | set(_SHAPE_KEYS[shape.value]), _W)
+    diameter_mm = ANTENNA.get(table, "wire_diameter_mm", _W)
+    bearing = ANTENNA.get(table, "end_a_bearing_deg", _W) % 360.0
+    nseg = ANTENNA.get(table, "segments_per_wire", _W)
+    sigma = ANTENNA.get(table, "wire_conductivity_s_per_m", _W)
     if shape is Shape.RECTANGLE:
-        length = get_float(table, "length_m", _W, minimum=0.0, exclusive_min=True,
-                           maximum=MAX_EXTENT_M)
-        height = get_float(table, "height_m", _W, minimum=0.0, exclusive_min=True,
-                           maximum=MAX_EXTENT_M)
-        bottom = get_float(table, "bottom_m", _W, minimum=0.0,
-                           maximum=MAX_EXTENT_M)
+        length = ANTENNA.get(table, "length_m", _W)
+        height = ANTENNA.get(table, "height_m", _W)
+        bottom = ANTENNA.get(table, "bottom_m", _W)
         if bottom >= height:
             raise ConfigError(f"{_W}.bottom_m", f"must be below height_m ({height:g}), "
                               f"got {bottom:g}")
-        pos = get_str(table, "port_position", _W, default="bottom", choices=("bottom", "middle"))
+        pos = ANTENNA.get(table, "port_position", _W)
         pts, ea, eb = rectangle_polyline(length, height, bottom, pos)
         lines, closed = (pts,), (True,)
     elif shape is Shape.TRIANGLE:
@@ -281,9 +205,8 @@ def parse_antenna(table: dict[str, Any]) -> AntennaSpec:
         for p in line:
             if p[2] < 0.0:
                 raise ConfigError(f"{_W}.polylines[{i}]", f"point {list(p)} is below ground")
-    ins_mm = get_float(table, "insulation_mm", _W, default=0.0, minimum=0.0, maximum=50.0)
-    ins_eps = get_float(table, "insulation_eps", _W, default=PVC_EPS, minimum=1.0,
-                        maximum=100.0)
+    ins_mm = ANTENNA.get(table, "insulation_mm", _W)
+    ins_eps = ANTENNA.get(table, "insulation_eps", _W)
     grounds, stake = _parse_ground_points(table, lines) if shape is Shape.POLYLINES else ((), None)
     outer = diameter_mm * 5e-4 + ins_mm * 1e-3
     lines, ea, eb, notes = _rest_on_soil(lines, ea, eb, grounds, outer)
@@ -343,11 +266,9 @@ def _parse_ground_points(t: dict[str, Any], lines) -> tuple[tuple, StakeSpec | N
             if k in t:
                 raise ConfigError(f"{_W}.{k}", "needs ground_points_m")
         return (), None
-    r = get_float(t, "stake_ohm", _W, minimum=0.0) if "stake_ohm" in t else None
-    length = get_float(t, "stake_length_m", _W, default=1.0, minimum=0.0, exclusive_min=True,
-                       maximum=100.0)
-    dia = get_float(t, "stake_diameter_mm", _W, default=16.0, minimum=0.0, exclusive_min=True,
-                    maximum=1000.0)
+    r = ANTENNA.get(t, "stake_ohm", _W) if "stake_ohm" in t else None
+    length = ANTENNA.get(t, "stake_length_m", _W)
+    dia = ANTENNA.get(t, "stake_diameter_mm", _W)
     return tuple(pts), StakeSpec(resistance_ohm=r, length_m=length, diameter_m=dia * 1e-3)
 
 
@@ -388,11 +309,10 @@ SOIL_PRESETS: dict[str, tuple[float, float]] = {
 
 def parse_ground(table: dict[str, Any]) -> GroundSpec:
     """Parse the ``[ground]`` table; bad or unknown keys raise ConfigError."""
-    check_unknown(table, {"kind", "conductivity_s_per_m", "permittivity", "preset"}, "ground")
-    kind = GroundKind(get_str(table, "kind", "ground", default="real",
-                              choices=tuple(k.value for k in GroundKind)))
+    GROUND.check(table, "ground")
+    kind = GroundKind(GROUND.get(table, "kind", "ground"))
     if "preset" in table:
-        name = get_str(table, "preset", "ground", choices=tuple(SOIL_PRESETS))
+        name = GROUND.get(table, "preset", "ground")
         for k in ("conductivity_s_per_m", "permittivity"):
             if k in table:
                 raise ConfigError(f"ground.{k}", "cannot be combined with ground.preset")
@@ -400,9 +320,8 @@ def parse_ground(table: dict[str, Any]) -> GroundSpec:
             raise ConfigError("ground.preset", f"needs kind real, got {kind.value!r}")
         sigma_p, eps_p = SOIL_PRESETS[name]
         return GroundSpec(kind=kind, conductivity_s_per_m=sigma_p, permittivity=eps_p)
-    sigma = get_float(table, "conductivity_s_per_m", "ground", default=0.005, minimum=0.0,
-                      maximum=1e8)
-    eps = get_float(table, "permittivity", "ground", default=13.0, minimum=1.0, maximum=200.0)
+    sigma = GROUND.get(table, "conductivity_s_per_m", "ground")
+    eps = GROUND.get(table, "permittivity", "ground")
     return GroundSpec(kind=kind, conductivity_s_per_m=sigma, permittivity=eps)
 
 
@@ -449,12 +368,11 @@ def _span(lo: float, hi: float, step: float, key: str) -> list[float]:
 
 def parse_band(table: dict[str, Any]) -> BandSpec:
     """Parse the ``[band]`` table (``freqs_mhz``, ``elevation_deg``)."""
-    check_unknown(table, {"freqs_mhz", "elevation_deg", "elevation_step_deg"}, "band")
+    BAND.check(table, "band")
     if "freqs_mhz" not in table:
         raise ConfigError("band.freqs_mhz", "is required")
     freqs = parse_freqs_mhz(table["freqs_mhz"], "band.freqs_mhz")
-    step = get_float(table, "elevation_step_deg", "band", default=5.0, minimum=0.0,
-                     exclusive_min=True)
+    step = BAND.get(table, "elevation_step_deg", "band")
     els = parse_elevations_deg(table.get("elevation_deg", [10.0, 60.0]), "band.elevation_deg",
                                step)
     return BandSpec(freqs_hz=tuple(f * 1e6 for f in freqs), elevations_deg=els)
@@ -463,20 +381,15 @@ def parse_band(table: dict[str, Any]) -> BandSpec:
 def parse_feed(table: dict[str, Any]) -> FeedSpec:
     """Parse the ``[feed]`` table (transformer, receiver, optional coax)."""
     w = "feed"
-    check_unknown(table, {"transformer_ratio", "receiver_ohm", "coax_z0_ohm",
-                          "coax_velocity_factor", "coax_loss_db_per_100m_at_10mhz",
-                          "coax_length_m"}, w)
-    ratio = get_float(table, "transformer_ratio", w, default=9.0, minimum=0.01, maximum=1e4)
-    rx = get_float(table, "receiver_ohm", w, default=50.0, minimum=0.1, maximum=1e6)
-    length = get_float(table, "coax_length_m", w, default=0.0, minimum=0.0, maximum=1e5)
+    FEED.check(table, w)
+    ratio = FEED.get(table, "transformer_ratio", w)
+    rx = FEED.get(table, "receiver_ohm", w)
+    length = FEED.get(table, "coax_length_m", w)
     coax = None
     if length > 0:
-        coax = Coax(z0_ohm=get_float(table, "coax_z0_ohm", w, default=50.0, minimum=1.0,
-                                     maximum=1000.0),
-                    velocity_factor=get_float(table, "coax_velocity_factor", w, default=0.66,
-                                              minimum=0.0, exclusive_min=True, maximum=1.0),
-                    loss_db_per_100m=get_float(table, "coax_loss_db_per_100m_at_10mhz", w,
-                                               default=4.0, minimum=0.0, maximum=100.0),
+        coax = Coax(z0_ohm=FEED.get(table, "coax_z0_ohm", w),
+                    velocity_factor=FEED.get(table, "coax_velocity_factor", w),
+                    loss_db_per_100m=FEED.get(table, "coax_loss_db_per_100m_at_10mhz", w),
                     length_m=length)
     return FeedSpec(transformer_ratio=ratio, receiver_ohm=rx, coax=coax)
 

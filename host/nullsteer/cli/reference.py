@@ -10,7 +10,7 @@ from nullsteer.station.config import SECTIONS
 from nullsteer.station.schema import registered, section_markdown
 
 #: The modules whose readers declare station-file sections.
-READER_MODULES = ("nullsteer.station.site", "nullsteer.schedule.rules",
+READER_MODULES = ("nullsteer.station.site", "nullsteer.antenna.sections", "nullsteer.schedule.rules",
                   "nullsteer.reception.noise", "nullsteer.reception.virtual")
 
 HEADER = """# The station file
