@@ -27,6 +27,8 @@ COMMAND_MODULES = (
     "nullsteer.cli.schedule",
     "nullsteer.cli.service",
     "nullsteer.cli.autonull",
+    "nullsteer.cli.level",
+    "nullsteer.cli.follow",
     "nullsteer.cli.noise",
     "nullsteer.cli.plot",
     "nullsteer.cli.firmware",
