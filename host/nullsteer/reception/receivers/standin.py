@@ -135,7 +135,7 @@ def virtual_scene(receiver: Any, freq_hz: float,
                   gain_db: float) -> Scene:
     """A scene from the virtual receiver: its stations' power at ``freq_hz`` as one tone,
     its noise as white noise of the same power in its bandwidth; dBm + ``gain_db`` = dBFS."""
-    g = 10.0 ** ((gain_db - 30.0) / 10.0)  # W -> FS^2
+    g = 10.0 ** ((gain_db + 30.0) / 10.0)  # W -> FS^2: dBFS = dBW + 30 + gain_db
 
     def scene(centre_hz: float) -> tuple[list[tuple[float, float]], float]:
         signal_w, noise_w = receiver.powers_w(freq_hz, *board_state())
