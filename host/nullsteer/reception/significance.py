@@ -26,20 +26,53 @@ from typing import Any
 _BIG_DOF = 1e6
 
 
+def t_two_sided(t: float, dof: int) -> float:
+    """``A(t|v) = P(|T| < t)`` for Student's t with integer ``dof`` (Abramowitz and Stegun,
+    eq. 26.7.3 for odd, 26.7.4 for even degrees of freedom)."""
+    theta = math.atan(abs(t) / math.sqrt(dof))
+    c2 = math.cos(theta) ** 2
+    if dof % 2 == 0:
+        term, total = 1.0, 1.0
+        for k in range(1, dof // 2):
+            term *= c2 * (2 * k - 1) / (2 * k)
+            total += term
+        return math.sin(theta) * total
+    if dof == 1:
+        return 2.0 * theta / math.pi
+    term, total = 1.0, 1.0
+    for k in range(1, (dof - 1) // 2):
+        term *= c2 * (2 * k) / (2 * k + 1)
+        total += term
+    return 2.0 / math.pi * (theta + math.sin(theta) * math.cos(theta) * total)
+
+
 def t_quantile(p: float, dof: float) -> float:
     """Quantile ``p`` of Student's t distribution with ``dof`` degrees of freedom.
 
-    Exact for 1 and 2 degrees of freedom (closed forms), else the Cornish-Fisher
-    expansion of Abramowitz and Stegun, eq. 26.7.5 (error below 1e-3 from 3 dof up).
+    Below 30 degrees of freedom: the exact distribution at ``floor(dof)`` (a fractional
+    Welch-Satterthwaite figure rounded down: a slightly wider, safe interval), inverted
+    by bisection; from 30 up the Cornish-Fisher expansion of Abramowitz and Stegun,
+    eq. 26.7.5 (error below 1e-4 there).
     """
     if not 0.0 < p < 1.0:
         raise ValueError(f"p must be in (0, 1), got {p}")
     if dof <= 0:
         raise ValueError(f"dof must be > 0, got {dof}")
-    if dof == 1:
-        return math.tan(math.pi * (p - 0.5))
-    if dof == 2:
-        return (2.0 * p - 1.0) / math.sqrt(2.0 * p * (1.0 - p))
+    if p < 0.5:
+        return -t_quantile(1.0 - p, dof)
+    if dof < 30:
+        v = max(1, int(math.floor(dof)))
+        target = 2.0 * p - 1.0
+        lo, hi = 0.0, 1.0
+        while t_two_sided(hi, v) < target:
+            hi *= 2.0
+        for _ in range(100):
+            mid = 0.5 * (lo + hi)
+            if t_two_sided(mid, v) < target:
+                lo = mid
+            else:
+                hi = mid
+        return 0.5 * (lo + hi)
     x = NormalDist().inv_cdf(p)
     n = float(dof)
     g1 = (x ** 3 + x) / 4.0
