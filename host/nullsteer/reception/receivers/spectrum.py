@@ -108,9 +108,12 @@ def welch(samples: np.ndarray, rate_hz: float, nperseg: int) -> Welch:
     w = hann_periodic(n)
     s2 = float(np.sum(w * w))
     s1 = float(np.sum(w))
-    idx = np.arange(n)[None, :] + step * np.arange(count)[:, None]
-    spec = np.fft.fft(x[idx] * w, axis=1)
-    psd = np.fft.fftshift(np.abs(spec) ** 2, axes=1) / (rate_hz * s2)
+    segments = np.lib.stride_tricks.sliding_window_view(x[:(count - 1) * step + n], n)[::step]
+    spec = np.fft.fft(segments * w, axis=1)
+    power = spec.real ** 2
+    power += spec.imag ** 2
+    power *= 1.0 / (rate_hz * s2)
+    psd = np.fft.fftshift(power, axes=1)
     freqs = np.fft.fftshift(np.fft.fftfreq(n, 1.0 / rate_hz))
     return Welch(freqs, psd, rate_hz, rate_hz * s2 / (s1 * s1))
 
