@@ -72,6 +72,20 @@ def rigctld():
     rig.stop()
 
 
+def accept_loop(server: object) -> None:
+    """Accept clients of ``server`` (its ``srv`` socket) until ``server._stop``; each one
+    is counted in ``server.connections`` and served by ``server._serve(conn)`` in a thread."""
+    srv = server.srv  # type: ignore[attr-defined]
+    srv.settimeout(0.1)
+    while not server._stop:  # type: ignore[attr-defined]
+        try:
+            conn, _ = srv.accept()
+        except (socket.timeout, OSError):
+            continue
+        server.connections += 1  # type: ignore[attr-defined]
+        threading.Thread(target=server._serve, args=(conn,), daemon=True).start()  # type: ignore[attr-defined]
+
+
 class ScriptedRig:
     """A rigctld stand-in: ``reply(command, connection_number) -> bytes | None``.
 
@@ -86,23 +100,14 @@ class ScriptedRig:
         self.connections = 0
         self.commands: list[str] = []
         self._stop = False
-        threading.Thread(target=self._accept, daemon=True).start()
+        threading.Thread(target=accept_loop, args=(self,), daemon=True).start()
 
     @property
     def url(self) -> str:
         return f"rigctl://127.0.0.1:{self.port}"
 
-    def _accept(self) -> None:
-        self.srv.settimeout(0.1)
-        while not self._stop:
-            try:
-                conn, _ = self.srv.accept()
-            except (socket.timeout, OSError):
-                continue
-            self.connections += 1
-            threading.Thread(target=self._serve, args=(conn, self.connections), daemon=True).start()
-
-    def _serve(self, conn: socket.socket, number: int) -> None:
+    def _serve(self, conn: socket.socket) -> None:
+        number = self.connections
         f = conn.makefile("rb")
         try:
             for line in f:
@@ -143,20 +148,10 @@ class RtlTcpServer:
         self.srv = socket.create_server(("127.0.0.1", 0))
         self.port = self.srv.getsockname()[1]
         self._stop = False
-        threading.Thread(target=self._accept, daemon=True).start()
+        threading.Thread(target=accept_loop, args=(self,), daemon=True).start()
 
     def url(self, query: str = "") -> str:
         return f"rtltcp://127.0.0.1:{self.port}" + (f"?{query}" if query else "")
-
-    def _accept(self) -> None:
-        self.srv.settimeout(0.1)
-        while not self._stop:
-            try:
-                conn, _ = self.srv.accept()
-            except (socket.timeout, OSError):
-                continue
-            self.connections += 1
-            threading.Thread(target=self._serve, args=(conn,), daemon=True).start()
 
     def _read_commands(self, conn: socket.socket) -> None:
         buf = b""
