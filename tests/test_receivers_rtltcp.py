@@ -155,3 +155,19 @@ def test_autonull_through_the_iq_standin_fed_by_the_virtual_receiver(tmp_path, c
     truth = {m: rx.level_dbm(1.83e6, "A", m, False, faded=False) for m, _ in table}
     assert truth[res["best_mask"]] - min(truth.values()) <= 1.0  # exhaustive best
     assert res["significant"] is True and res["null_db"] < -10
+
+
+@pytest.mark.slow
+def test_loopback_iq_receiver_of_the_simulator(capsys):
+    # sim://?iq=1: the virtual receiver through synthetic 8-bit IQ and the Welch estimator,
+    # no socket; the demo interferer sits on the reversed fed end's main lobe, so the
+    # null against it must be deep and significant (same scenario as the stand-in test)
+    root = Path(__file__).resolve().parents[1]
+    code = main(["autonull", "--link", "sim://", "--config", str(root / "examples" / "station.toml"),
+                 "--freq", "1.83", "--fed-end", "A", "--receiver", "sim://?iq=1&gain_db=50",
+                 "--dwell", "0.02", "--interval", "0.01", "--json"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    res = json.loads(captured.out)
+    assert res["unit"] == "dBFS" and res["source"] == "sim://?iq=1&gain_db=50"
+    assert res["significant"] is True and res["null_db"] < -10

@@ -17,7 +17,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from typing import Any, Protocol
-from urllib.parse import parse_qsl, urlsplit, urlunsplit
+from urllib.parse import parse_qsl, urlsplit
 
 from nullsteer.errors import ConfigError
 
@@ -143,7 +143,8 @@ def split_url(url: str, default_port: int | None = None) -> ReceiverUrl:
     netloc = parts.hostname or ""
     if parts.port is not None:
         netloc += f":{parts.port}"
-    shown = urlunsplit((scheme, netloc, parts.path, parts.query, ""))
+    sep = "://" if url.split(":", 1)[1].startswith("//") else ":"
+    shown = f"{scheme}{sep}{netloc}{parts.path}" + (f"?{parts.query}" if parts.query else "")
     return ReceiverUrl(scheme, parts.hostname or "", port, parts.path, options, shown)
 
 
