@@ -32,6 +32,7 @@ correlation of Hann at 50 % listed by Heinzel et al. 2002, Table 1; Welch 1967).
 from __future__ import annotations
 
 import math
+from functools import lru_cache
 from dataclasses import dataclass
 from enum import Enum
 
@@ -53,10 +54,17 @@ class Mode(str, Enum):
     CHANNEL = "channel"
 
 
+@lru_cache(maxsize=8)
+def _hann(n: int) -> np.ndarray:
+    k = np.arange(n)
+    w = 0.5 - 0.5 * np.cos(2.0 * np.pi * k / n)
+    w.setflags(write=False)
+    return w
+
+
 def hann_periodic(n: int) -> np.ndarray:
     """The DFT-even Hann window of ``n`` points (Heinzel et al. 2002, Appendix C.1)."""
-    k = np.arange(n)
-    return 0.5 - 0.5 * np.cos(2.0 * np.pi * k / n)
+    return _hann(int(n))
 
 
 def segment_length(rate_hz: float, rbw_hz: float) -> int:
@@ -98,7 +106,7 @@ class Welch:
 
 def welch(samples: np.ndarray, rate_hz: float, nperseg: int) -> Welch:
     """Welch's method on complex ``samples`` (Hann, 50 % overlap, no detrending)."""
-    x = np.asarray(samples)
+    x = np.asarray(samples, dtype=np.complex128)  # one upcast, not one per segment
     n = int(nperseg)
     if n < 16 or len(x) < n:
         raise ConfigError("--receiver", f"a reading of {len(x)} samples is shorter than one "
