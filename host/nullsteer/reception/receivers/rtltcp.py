@@ -188,16 +188,6 @@ class RtlTcpReceiver:
     def __exit__(self, *exc: object) -> None:
         self.close()
 
-    def tune(self, freq_hz: float) -> None:
-        """Set the signal frequency (the tuner goes to ``freq - offset``)."""
-        self._freq_hz = float(freq_hz)
-        if self._sock is not None:
-            try:
-                self._sock.sendall(command_bytes(Command.DIRECT, self.direct_mode()) +
-                                   command_bytes(Command.FREQ, int(round(self.centre_hz()))))
-            except OSError:
-                self.close()
-
     # -- samples -----------------------------------------------------------------
     def _fresh_bytes(self, count: int) -> bytes:
         """``count`` stream bytes that arrive after this call (an even start: I then Q)."""
