@@ -72,21 +72,35 @@ def rigctld():
     rig.stop()
 
 
-def accept_loop(server: object) -> None:
-    """Accept clients of ``server`` (its ``srv`` socket) until ``server._stop``; each one
-    is counted in ``server.connections`` and served by ``server._serve(conn)`` in a thread."""
-    srv = server.srv  # type: ignore[attr-defined]
-    srv.settimeout(0.1)
-    while not server._stop:  # type: ignore[attr-defined]
-        try:
-            conn, _ = srv.accept()
-        except (socket.timeout, OSError):
-            continue
-        server.connections += 1  # type: ignore[attr-defined]
-        threading.Thread(target=server._serve, args=(conn,), daemon=True).start()  # type: ignore[attr-defined]
+class LoopbackServer:
+    """A TCP server on 127.0.0.1 serving each client with ``_serve(conn)`` in a thread."""
+
+    def __init__(self) -> None:
+        self.srv = socket.create_server(("127.0.0.1", 0))
+        self.port = self.srv.getsockname()[1]
+        self.connections = 0
+        self._stop = False
+        threading.Thread(target=self._accept, daemon=True).start()
+
+    def _accept(self) -> None:
+        self.srv.settimeout(0.1)
+        while not self._stop:
+            try:
+                conn, _ = self.srv.accept()
+            except (socket.timeout, OSError):
+                continue
+            self.connections += 1
+            threading.Thread(target=self._serve, args=(conn,), daemon=True).start()
+
+    def _serve(self, conn: socket.socket) -> None:
+        raise NotImplementedError
+
+    def stop(self) -> None:
+        self._stop = True
+        self.srv.close()
 
 
-class ScriptedRig:
+class ScriptedRig(LoopbackServer):
     """A rigctld stand-in: ``reply(command, connection_number) -> bytes | None``.
 
     None keeps silent (the client times out); the bytes ``b"<close>"`` drop the
@@ -95,12 +109,8 @@ class ScriptedRig:
 
     def __init__(self, reply: Callable[[str, int], bytes | None]) -> None:
         self.reply = reply
-        self.srv = socket.create_server(("127.0.0.1", 0))
-        self.port = self.srv.getsockname()[1]
-        self.connections = 0
         self.commands: list[str] = []
-        self._stop = False
-        threading.Thread(target=accept_loop, args=(self,), daemon=True).start()
+        super().__init__()
 
     @property
     def url(self) -> str:
@@ -128,12 +138,8 @@ class ScriptedRig:
         finally:
             conn.close()
 
-    def stop(self) -> None:
-        self._stop = True
-        self.srv.close()
 
-
-class RtlTcpServer:
+class RtlTcpServer(LoopbackServer):
     """Streams ``iq_u8`` (bytes, cycled) to each client, paced to ``rate_hz``; records
     the commands received as (command, value) pairs."""
 
@@ -144,11 +150,7 @@ class RtlTcpServer:
         self.magic = magic
         self.drop_after = drop_after_bytes
         self.commands: list[tuple[int, int]] = []
-        self.connections = 0
-        self.srv = socket.create_server(("127.0.0.1", 0))
-        self.port = self.srv.getsockname()[1]
-        self._stop = False
-        threading.Thread(target=accept_loop, args=(self,), daemon=True).start()
+        super().__init__()
 
     def url(self, query: str = "") -> str:
         return f"rtltcp://127.0.0.1:{self.port}" + (f"?{query}" if query else "")
@@ -188,7 +190,3 @@ class RtlTcpServer:
             pass
         finally:
             conn.close()
-
-    def stop(self) -> None:
-        self._stop = True
-        self.srv.close()
