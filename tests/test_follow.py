@@ -136,3 +136,18 @@ def test_follow_refuses_a_receiver_without_a_frequency(tmp_path, capsys):
     assert main(["follow", "--config", str(ROOT / "examples" / "station.toml"),
                  "--receiver", f"iqwav:{rec}"]) == 2
     assert "reports its frequency" in capsys.readouterr().err
+
+
+@pytest.mark.slow
+def test_follow_with_rules_takes_the_preset_in_force(rigctld, capsys):  # noqa: F811
+    # the demo file's rules alternate dx-west / dx-east (no per-band settings): which one
+    # is in force depends on the hour, either way its fed end and the model decide
+    assert rigctld.raw("F 1830000") == "RPRT 0"
+    code = main(["follow", "--config", str(ROOT / "examples" / "station.toml"), "--link", "sim://",
+                 "--receiver", rigctld.url, "--rules", "--poll", "0.1", "--polls", "3", "--json"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    (event,) = [json.loads(line) for line in captured.out.splitlines()]
+    assert event["basis"] in ("rule preset dx-west: no 160m setting, model optimum",
+                              "rule preset dx-east: no 160m setting, model optimum")
+    assert event["fed_end"] == ("A" if "dx-west" in event["basis"] else "B")
