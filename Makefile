@@ -7,7 +7,7 @@ STUBS  := .stubs
 STUBS_STAMP := $(STUBS)/.installed-stamp
 DEMO_OUT ?= out/demo
 
-.PHONY: all venv broker browser stubs typecheck test demo bench attack clean
+.PHONY: all venv broker browser hamlib stubs typecheck test demo bench attack clean
 
 all: test
 
@@ -42,6 +42,18 @@ browser:
 	  echo "chromium is not installed: install it (e.g. 'sudo apt-get install chromium chromium-driver') and rerun"; exit 1; \
 	fi
 
+# The receiver tests talk to Hamlib's rigctld with its dummy rig (-m 1) on loopback.
+# apt/dpkg may be busy (another install): wait for its lock rather than fail.
+hamlib:
+	@if command -v rigctld >/dev/null 2>&1 || [ -x /usr/bin/rigctld ]; then :; \
+	elif [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then \
+	  echo "installing libhamlib-utils (apt-get)"; \
+	  apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq \
+	    -o DPkg::Lock::Timeout=600 libhamlib-utils >/dev/null; \
+	else \
+	  echo "rigctld is not installed: install it (e.g. 'sudo apt-get install libhamlib-utils') and rerun"; exit 1; \
+	fi
+
 # MicroPython stubs live in a folder of their own: they shadow time, socket... in a venv.
 $(STUBS_STAMP): | $(STAMP)
 	$(BIN)/python -m pip install -q --target $(STUBS) micropython-rp2-stubs
@@ -53,7 +65,7 @@ typecheck: venv stubs
 	$(BIN)/python -m mypy
 	bash firmware/typecheck.sh $(BIN)/python $(STUBS)
 
-test: venv broker browser typecheck
+test: venv broker browser hamlib typecheck
 	$(BIN)/python -m pytest -q
 
 demo: venv

@@ -13,6 +13,8 @@ Keys of each entry:
 ``key_env``     optional environment variable holding the shared key (hex)
 ``timeout_s``   reply timeout, seconds (default 1.0)
 ``retries``     extra attempts after a timeout (default 2)
+``receiver``    optional receiver URL heard through this antenna (``rigctl://``,
+                ``rtltcp://``, ``iqwav:``, ``sim://``; see :mod:`nullsteer.reception.receivers`)
 """
 
 from __future__ import annotations
@@ -29,7 +31,8 @@ from nullsteer.station.config import Station, check_unknown, get_float, get_int,
 from nullsteer.errors import ConfigError, redacted
 
 _ID = re.compile(r"^[A-Za-z0-9_-]{1,32}$")
-_KEYS = frozenset({"id", "link", "board", "key_file", "key_env", "timeout_s", "retries"})
+_KEYS = frozenset({"id", "link", "board", "key_file", "key_env", "timeout_s", "retries",
+                   "receiver"})
 
 
 @dataclass(frozen=True)
@@ -42,6 +45,7 @@ class Device:
     key: bytes | None
     timeout_s: float
     retries: int
+    receiver: str | None = None
 
 
 def _read_key(text: str, where: str) -> bytes:
@@ -107,7 +111,13 @@ def parse_device(station: Station, table: dict, index: int) -> Device:
         if name not in os.environ:
             raise ConfigError(f"{where}.key_env", f"environment variable {name} is not set")
         key = _read_key(os.environ[name], f"{where}.key_env")
-    return Device(id=dev_id, link=link, board_config=board_path, key=key,
+    receiver = table.get("receiver")
+    if receiver is not None:
+        receiver = get_str(table, "receiver", where)
+        if ":" not in receiver:
+            raise ConfigError(f"{where}.receiver", "expected a URL such as "
+                                                   f"rigctl://127.0.0.1:4532, got {receiver!r}")
+    return Device(id=dev_id, link=link, board_config=board_path, key=key, receiver=receiver,
                   timeout_s=get_float(table, "timeout_s", where, 1.0, minimum=0.01),
                   retries=get_int(table, "retries", where, 2, minimum=0, maximum=20))
 

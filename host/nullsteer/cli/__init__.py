@@ -31,6 +31,8 @@ COMMAND_MODULES = (
     "nullsteer.cli.service",
     "nullsteer.cli.serve",
     "nullsteer.cli.autonull",
+    "nullsteer.cli.level",
+    "nullsteer.cli.follow",
     "nullsteer.cli.noise",
     "nullsteer.cli.plot",
     "nullsteer.cli.firmware",

@@ -114,3 +114,26 @@ def connect(args: argparse.Namespace):
     timeout = args.timeout or (device.timeout_s if device else 1.0)
     return Controller(link, timeout_s=timeout, retries=device.retries if device else 2,
                       key=device.key if device else None)
+
+
+def add_receiver_option(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--receiver", metavar="URL",
+                        help="receiver URL: rigctl://HOST:PORT, rtltcp://HOST:PORT?freq_mhz=..., "
+                             "iqwav:FILE, sim:// (default: the device's receiver key)")
+
+
+def receiver_url(args: argparse.Namespace) -> str | None:
+    """``--receiver``, else the ``receiver`` key of the ``[[device]]`` that ``--config``
+    and ``--device`` name (None when neither gives one)."""
+    if getattr(args, "receiver", None):
+        return str(args.receiver)
+    if not getattr(args, "config", None):
+        return None
+    from nullsteer.board.devices import parse_devices
+    from nullsteer.station.config import load_station
+
+    devices = parse_devices(load_station(args.config))
+    if args.device:
+        devices = [d for d in devices if d.id == args.device]
+    found = [d.receiver for d in devices if d.receiver]
+    return found[0] if len(found) == 1 or (found and args.device) else None

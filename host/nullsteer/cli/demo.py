@@ -170,8 +170,8 @@ def run(args: argparse.Namespace) -> int:
                            progress=None if args.json else _progress)
     summary["autonull"] = result.to_json()
     _say(args, f"  best setting mask {result.best_mask} = {result.best_ohms:.0f} ohm, "
-               f"null {result.null_db:+.1f} dB against the reversed direction, "
-               f"{result.switchings} switchings")
+               f"{_null_text(result)} against the reversed direction, "
+               f"{result.switchings} switchings (+{result.confirm_switchings} to confirm)")
 
     _say(args, "== 5. the next day of scheduled flips, time-shifted (service against the board)")
     summary["schedule"] = step_schedule(args, station, board_config)
@@ -204,3 +204,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--out", default="out/demo", metavar="DIR", help="where to write the report")
     add_json_flag(p)
     p.set_defaults(func=run)
+
+
+def _null_text(result) -> str:  # noqa: ANN001 - an AutonullResult
+    if result.significance is not None:
+        return result.significance.describe()
+    return f"null {result.null_db:+.1f} dB"

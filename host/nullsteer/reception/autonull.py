@@ -23,6 +23,12 @@ because it compares neighbours read a few seconds apart.
 :func:`run_autonull` wraps the search with a reference reading (the ``open``
 state or the ``reversed`` fed end) so that ``null_db`` = best level - reference level
 (negative: how far the null pushes the signal down), and counts every relay switching.
+With ``confirm_blocks`` it then reads the best setting and the reference afresh in
+ABBA blocks (best, reference, reference, best; two switchings per block, outside the
+search's budget) and states the null with a confidence interval
+(:mod:`nullsteer.reception.significance`): ``null_db`` is then that estimate, free of
+the search's selection bias, and ``significant`` says whether it is distinguishable
+from the reference at all.
 """
 
 from __future__ import annotations
@@ -36,6 +42,8 @@ from typing import Any
 import numpy as np
 
 from nullsteer.errors import ConfigError
+from nullsteer.reception.measure import Measurement
+from nullsteer.reception.significance import NullEstimate, null_estimate
 
 
 class Reference(str, Enum):
@@ -251,12 +259,27 @@ class AutonullResult:
     freq_hz: float
     start_ohm: float
     notes: list[str] = field(default_factory=list)
+    significance: NullEstimate | None = None
+    confirm_switchings: int = 0
 
     @property
-    def null_db(self) -> float | None:
+    def search_null_db(self) -> float | None:
+        """Best reading of the search minus the first reference reading, dB (biased low:
+        the best is the lowest of several noisy readings)."""
         if self.reference_level_db is None:
             return None
         return self.best_level_db - self.reference_level_db
+
+    @property
+    def null_db(self) -> float | None:
+        """The confirmed null depth when there is one, else the search's, dB."""
+        if self.significance is not None:
+            return self.significance.null_db
+        return self.search_null_db
+
+    @property
+    def significant(self) -> bool | None:
+        return None if self.significance is None else self.significance.significant
 
     def to_json(self) -> dict[str, Any]:
         return {"freq_mhz": self.freq_hz / 1e6, "fed_end": self.fed_end,
@@ -266,7 +289,12 @@ class AutonullResult:
                 "reference": self.reference.value,
                 "reference_level_db": (None if self.reference_level_db is None
                                        else round(self.reference_level_db, 2)),
-                "switchings": self.switchings, "start_ohm": self.start_ohm,
+                "search_null_db": (None if self.search_null_db is None
+                                   else round(self.search_null_db, 2)),
+                "significant": self.significant,
+                "significance": None if self.significance is None else self.significance.to_json(),
+                "switchings": self.switchings, "confirm_switchings": self.confirm_switchings,
+                "start_ohm": self.start_ohm,
                 "path": [p.to_json() for p in self.probes], "notes": list(self.notes)}
 
 
@@ -302,6 +330,7 @@ def run_autonull(table: Sequence[tuple[int, float]], switcher: Switcher,
                  start_ohm: float, reference: Reference = Reference.REVERSED,
                  max_switchings: int = 12, coarse_ratio: float = 1.35,
                  progress: Callable[[str, Probe | None, float | None], None] | None = None,
+                 confirm_blocks: int = 0, measure: Callable[[], Measurement] | None = None,
                  ) -> AutonullResult:
     """Reference reading, search, and end on the best setting.
 
@@ -324,7 +353,13 @@ def run_autonull(table: Sequence[tuple[int, float]], switcher: Switcher,
     max_switchings : int
         Budget for every switching, reference and final move included.
     progress : callable or None
-        ``progress(kind, probe, level_db)`` with kind "reference", "probe" or "final".
+        ``progress(kind, probe, level_db)`` with kind "reference", "probe", "final",
+        "confirm-best" or "confirm-reference".
+    confirm_blocks : int
+        ABBA blocks read after the search for the significance check (0: none; needs a
+        reference and ``measure``). The reference is then read at the best setting.
+    measure : callable or None
+        ``measure() -> Measurement`` (the readings with their spreads), for the check.
     """
     fed_end = str(getattr(fed_end, "value", fed_end))
     if fed_end not in ("A", "B"):
@@ -341,23 +376,55 @@ def run_autonull(table: Sequence[tuple[int, float]], switcher: Switcher,
         if progress is not None:
             progress("reference", None, ref_level)
 
-    def measure(mask: int) -> float:
+    def measure_at(mask: int) -> float:
         switcher.set(fed_end, mask, False)
         return measure_db()
 
     budget = max_switchings - switcher.switchings - 1  # keep one for the final move
-    result = search_null(table, measure, start_ohm, max_probes=max(1, budget),
+    result = search_null(table, measure_at, start_ohm, max_probes=max(1, budget),
                          coarse_ratio=coarse_ratio,
                          progress=(lambda p: progress("probe", p, p.level_db)) if progress else None)
     switcher.set(fed_end, result.best_mask, False)
     if progress is not None:
         progress("final", None, result.best_level_db)
+    search_switchings = switcher.switchings
+    estimate = None
+    if confirm_blocks > 0 and measure is not None and reference is not Reference.NONE:
+        estimate = _confirm(switcher, measure, fed_end, result.best_mask, reference,
+                            confirm_blocks, progress)
     notes = []
+    if estimate is not None and not estimate.significant:
+        notes.append(estimate.describe())
     if result.best_mask in (masks[0], masks[-1]):
         notes.append("the best setting is at the end of the ladder's range: the optimum may "
                      "lie beyond it")
     return AutonullResult(best_mask=result.best_mask, best_ohms=result.best_ohms,
                           best_level_db=result.best_level_db, reference=reference,
-                          reference_level_db=ref_level, switchings=switcher.switchings,
+                          reference_level_db=ref_level, switchings=search_switchings,
                           probes=result.probes, fed_end=fed_end, freq_hz=freq_hz,
-                          start_ohm=start_ohm, notes=notes)
+                          start_ohm=start_ohm, notes=notes, significance=estimate,
+                          confirm_switchings=switcher.switchings - search_switchings)
+
+
+def _confirm(switcher: Switcher, measure: Callable[[], Measurement], fed_end: str,
+             best_mask: int, reference: Reference, blocks: int,
+             progress: Callable[[str, Probe | None, float | None], None] | None
+             ) -> NullEstimate:
+    """ABBA blocks of fresh readings at the best setting (A) and the reference (B)."""
+    best = (fed_end, best_mask, False)
+    ref = ((fed_end, best_mask, True) if reference is Reference.OPEN
+           else ("B" if fed_end == "A" else "A", best_mask, False))
+    cand: list[Measurement] = []
+    refs: list[Measurement] = []
+    for _ in range(blocks):
+        for state, into, kind in ((best, cand, "confirm-best"), (ref, refs, "confirm-reference"),
+                                  (ref, refs, "confirm-reference"), (best, cand, "confirm-best")):
+            switcher.set(*state)
+            m = measure()
+            into.append(m)
+            if progress is not None:
+                progress(kind, None, m.level_db)
+    return null_estimate([v for m in cand for v in m.levels_db],
+                         [v for m in refs for v in m.levels_db],
+                         [s for m in cand for s in m.sigmas_db],
+                         [s for m in refs for s in m.sigmas_db])

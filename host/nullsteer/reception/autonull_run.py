@@ -125,8 +125,12 @@ def board_state_reader(controller: Any) -> Callable[[], tuple[str, int, bool]]:
 def autonull_on_controller(controller: Any, meter: Meter, freq_hz: float, fed_end: str,
                            start_ohm: float, reference: Reference = Reference.REVERSED,
                            max_switchings: int = 12,
-                           progress: ProgressFn | None = None) -> AutonullResult:
+                           progress: ProgressFn | None = None,
+                           confirm_blocks: int = 1) -> AutonullResult:
     """Run the search through ``controller``; on a measurement failure put back the old state.
+
+    ``confirm_blocks`` ABBA blocks of fresh readings follow the search (two switchings
+    each) and give the null's confidence interval (see :func:`run_autonull`).
 
     A :class:`MeasurementError` restores the state the board was in before the search
     (the last state known good for listening) and is re-raised with that said. A
@@ -148,7 +152,8 @@ def autonull_on_controller(controller: Any, meter: Meter, freq_hz: float, fed_en
     try:
         return run_autonull(table, switcher, meter.measure_db, fed_end, freq_hz, start_ohm,
                             reference=reference, max_switchings=max_switchings,
-                            progress=progress)
+                            progress=progress, confirm_blocks=confirm_blocks,
+                            measure=meter.measure)
     except MeasurementError as exc:
         try:
             switcher.set(*initial)
@@ -261,7 +266,8 @@ def demo_autonull(station_path: str | Path, freq_mhz: float | None = None,
     from nullsteer.station.bearing import fed_end_for_null
     from nullsteer.board.controller import Controller
     from nullsteer.board.devices import parse_devices
-    from nullsteer.reception.virtual import SimSource, parse_scenario
+    from nullsteer.reception.receivers import open_receiver
+    from nullsteer.reception.virtual import parse_scenario
 
     station = load_station(station_path)
     scenario = parse_scenario(station)
@@ -282,7 +288,8 @@ def demo_autonull(station_path: str | Path, freq_mhz: float | None = None,
         table = ctl.table()
         receiver = build_virtual_receiver(station, solution,
                                           board_termination(board_config, table))
-        source: Source = SimSource(receiver, freq_hz, board_state_reader(ctl))
+        source: Source = open_receiver("sim://", freq_hz=freq_hz, virtual=receiver,
+                                       board_state=board_state_reader(ctl))
         meter = Meter(source, dwell_s=dwell_s, reads=reads, interval_s=0.02)
         start = start if math.isfinite(start) else max(r for _, r in table)
         return autonull_on_controller(ctl, meter, freq_hz, fe, start, progress=progress)

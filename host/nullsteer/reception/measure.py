@@ -181,13 +181,54 @@ class Meter:
         if self.interval_s < 0:
             raise ConfigError("--interval", f"must be >= 0, got {self.interval_s:g}")
 
-    def measure_db(self, reads: int | None = None) -> float:
-        """Dwell, then the power mean of ``reads`` readings (default ``self.reads``), dB."""
+    def measure(self, reads: int | None = None) -> Measurement:
+        """Dwell, then ``reads`` readings (default ``self.reads``) with their spreads.
+
+        A source with ``read()`` (a receiver, :mod:`nullsteer.reception.receivers`)
+        gives each reading's own spread; a plain ``read_db`` source counts as exact.
+        """
         n = self.reads if reads is None else reads
         self.sleep(self.dwell_s)
-        levels = []
+        levels: list[float] = []
+        sigmas: list[float] = []
+        read = getattr(self.source, "read", None)
         for k in range(n):
             if k:
                 self.sleep(self.interval_s)
-            levels.append(self.source.read_db())
-        return power_mean_db(levels)
+            if read is not None:
+                r = read()
+                levels.append(float(r.level_db))
+                sigmas.append(float(r.spread_db))
+            else:
+                levels.append(self.source.read_db())
+                sigmas.append(0.0)
+        return Measurement(tuple(levels), tuple(sigmas))
+
+    def measure_db(self, reads: int | None = None) -> float:
+        """Dwell, then the power mean of ``reads`` readings (default ``self.reads``), dB."""
+        return self.measure(reads).level_db
+
+
+@dataclass(frozen=True)
+class Measurement:
+    """The readings taken at one setting: dB values and each one's own spread (dB)."""
+
+    levels_db: tuple[float, ...]
+    sigmas_db: tuple[float, ...]
+
+    @property
+    def level_db(self) -> float:
+        """Power mean of the readings, dB."""
+        return power_mean_db(self.levels_db)
+
+    @property
+    def spread_db(self) -> float:
+        """Standard uncertainty of the mean level (one sigma), dB: the readings' scatter
+        over sqrt(n), but never less than their own spreads allow."""
+        n = len(self.levels_db)
+        own = math.sqrt(sum(s * s for s in self.sigmas_db) / n / n)
+        if n < 2:
+            return own
+        mean = sum(self.levels_db) / n
+        var = sum((v - mean) ** 2 for v in self.levels_db) / (n - 1)
+        return max(math.sqrt(var / n), own)

@@ -226,16 +226,17 @@ class VirtualReceiver:
                                              self.scenario.rician_k_db, seed))
         return self._fading[key]
 
-    def level_dbm(self, freq_hz: float, fed_end: str, mask: int, open_: bool,
-                  faded: bool = True) -> float:
-        """Received level in the passband at ``freq_hz`` for this relay state, dBm.
+    def powers_w(self, freq_hz: float, fed_end: str, mask: int, open_: bool,
+                 faded: bool = True) -> tuple[float, float]:
+        """(stations, noise) power in the passband for this relay state, W.
 
-        ``faded=False`` gives the mean level (no fading, no reading jitter): the
-        "truth" that an exhaustive sweep is scored against.
+        The stations' part is faded unless ``faded=False``; the noise is the mean
+        (external plus chain) noise power in ``bandwidth_hz``.
         """
         z = complex(math.inf) if open_ else complex(self.termination_ohm(mask, freq_hz))
         sts, fading = self._stations(freq_hz)
-        total_w = self.noise_w(freq_hz, z, fed_end)
+        noise_w = self.noise_w(freq_hz, z, fed_end)
+        signal_w = 0.0
         if sts:
             az = np.array([s.bearing_deg for s in sts])
             el = np.array([s.elevation_deg for s in sts])
@@ -244,10 +245,20 @@ class VirtualReceiver:
                                                                      az, el, e)), 0.0)
             if faded:
                 p = p * fading.gains(self.clock())
-            total_w += float(np.sum(p))
-        level = 10.0 * math.log10(total_w) + 30.0
+            signal_w = float(np.sum(p))
+        return signal_w, noise_w
+
+    def level_dbm(self, freq_hz: float, fed_end: str, mask: int, open_: bool,
+                  faded: bool = True) -> float:
+        """Received level in the passband at ``freq_hz`` for this relay state, dBm.
+
+        ``faded=False`` gives the mean level (no fading, no reading jitter): the
+        "truth" that an exhaustive sweep is scored against.
+        """
+        signal_w, noise_w = self.powers_w(freq_hz, fed_end, mask, open_, faded)
+        level = 10.0 * math.log10(signal_w + noise_w) + 30.0
         if faded and self.scenario.read_noise_db > 0:
-            level += float(fading.rng.normal(0.0, self.scenario.read_noise_db))
+            level += float(self._stations(freq_hz)[1].rng.normal(0.0, self.scenario.read_noise_db))
         return level
 
     def noise_w(self, freq_hz: float, termination_ohm: complex, fed_end: str) -> float:
