@@ -103,9 +103,10 @@ def test_follow_retunes_a_real_board_from_rigctld(rigctld, tmp_path, capsys):  #
     text = text.replace('board = "board-sim.json"',
                         f'board = "{ROOT / "examples" / "board-sim.json"}"\n'
                         f'receiver = "{rigctld.url}"')
-    text = text.replace('dx-west   = { fed_end = "A", ohms = 1300.0 }',
-                        'dx-west   = { fed_end = "A", ohms = 1300.0, '
-                        'bands = { "80m" = { ohms = 1000.0 } } }')
+    old = 'dx-east   = { fed_end = "A", ohms = 1300.0 }'
+    assert old in text
+    text = text.replace(old, 'dx-east   = { fed_end = "A", ohms = 1300.0, '
+                             'bands = { "80m" = { ohms = 1000.0 } } }')
     station = tmp_path / "station.toml"
     station.write_text(text)
     assert rigctld.raw("F 1830000") == "RPRT 0"
@@ -120,7 +121,7 @@ def test_follow_retunes_a_real_board_from_rigctld(rigctld, tmp_path, capsys):  #
     assert code == 0, captured.err
     events = [json.loads(line) for line in captured.out.splitlines()]
     assert [(e["band"], e["basis"]) for e in events] == [
-        ("160m", "model optimum"), ("80m", "preset dx-west, 80m setting")]
+        ("160m", "model optimum"), ("80m", "preset dx-east, 80m setting")]
     assert events[1]["ohms"] == 1000.0 and "mask" in events[1]["board"]
 
 
@@ -140,7 +141,7 @@ def test_follow_refuses_a_receiver_without_a_frequency(tmp_path, capsys):
 
 @pytest.mark.slow
 def test_follow_with_rules_takes_the_preset_in_force(rigctld, capsys):  # noqa: F811
-    # the demo file's rules alternate dx-west / dx-east (no per-band settings): which one
+    # the demo file's rules alternate dx-east / dx-west (no per-band settings): which one
     # is in force depends on the hour, either way its fed end and the model decide
     assert rigctld.raw("F 1830000") == "RPRT 0"
     code = main(["follow", "--config", str(ROOT / "examples" / "station.toml"), "--link", "sim://",
@@ -150,4 +151,4 @@ def test_follow_with_rules_takes_the_preset_in_force(rigctld, capsys):  # noqa: 
     (event,) = [json.loads(line) for line in captured.out.splitlines()]
     assert event["basis"] in ("rule preset dx-west: no 160m setting, model optimum",
                               "rule preset dx-east: no 160m setting, model optimum")
-    assert event["fed_end"] == ("A" if "dx-west" in event["basis"] else "B")
+    assert event["fed_end"] == ("A" if "dx-east" in event["basis"] else "B")

@@ -3,8 +3,11 @@
 The lines are read from README.md itself (so a new usage line is run the day it is
 added). ``URL`` is the link a ``nullsteer sim`` started for the test prints, as the
 README says; ``./level.sh`` is a script that prints a level in dB, as the auto-null
-line expects. Lines that need hardware on this machine are named in
-:data:`HARDWARE_ONLY` and skipped; long-running commands are started and stopped.
+line expects. The receivers the lines name are there too: the real ``rigctld`` (dummy
+rig), an rtl_tcp stand-in and a recorded ``recording.wav``; their addresses in the lines
+(``127.0.0.1:4532``, ``127.0.0.1:1234``) are replaced by the ports the test's servers got.
+Lines that need hardware on this machine are named in :data:`HARDWARE_ONLY` and skipped;
+long-running commands are started and stopped once they say they are up.
 """
 
 from __future__ import annotations
@@ -24,7 +27,7 @@ ROOT = Path(__file__).resolve().parents[1]
 #: Lines that talk to hardware this machine does not have (a USB serial adaptor).
 HARDWARE_ONLY = {"nullsteer status --link serial:///dev/ttyUSB0"}
 #: Commands that run until stopped: started, checked to say what the README says, stopped.
-LONG_RUNNING = {"sim": "link: ", "serve": "page: "}
+LONG_RUNNING = {"sim": "link: ", "serve": "page: ", "follow": ""}
 
 
 def usage_lines() -> list[str]:
@@ -40,10 +43,16 @@ def usage_lines() -> list[str]:
     return lines
 
 
-def _argv(line: str, url: str) -> list[str]:
+def _argv(line: str, url: str, ports: dict[str, str] | None = None) -> list[str]:
     words = shlex.split(line)
     assert words[0] == "nullsteer"
-    return [sys.executable, "-m", "nullsteer"] + [url if w == "URL" else w for w in words[1:]]
+    out = []
+    for w in words[1:]:
+        w = url if w == "URL" else w
+        for readme_addr, real in (ports or {}).items():
+            w = w.replace(readme_addr, real)
+        out.append(w)
+    return [sys.executable, "-m", "nullsteer"] + out
 
 
 @pytest.fixture(scope="module")
@@ -55,6 +64,28 @@ def workdir(tmp_path_factory):
     script.write_text("#!/bin/sh\necho -42.5\n")
     script.chmod(0o755)
     return work
+
+
+@pytest.fixture(scope="module")
+def receivers(workdir):
+    """rigctld, an rtl_tcp stand-in and recording.wav: the README's receiver lines' addresses."""
+    import numpy as np
+
+    from nullsteer.reception.receivers.iqwav import write_iq_wav
+    from nullsteer.reception.receivers.standin import IqStandIn
+    from receiver_support import Rigctld
+
+    rate = 96000.0
+    n = np.arange(int(rate))
+    tone = 0.25 * np.exp(2j * np.pi * 30e3 * n / rate)  # 1.83 MHz in a 1.8 MHz recording
+    write_iq_wav(workdir / "recording.wav", tone, rate)
+    rig = Rigctld()
+    iq = IqStandIn(lambda centre_hz: ([(0.0, 1e-3)], 1e-9)).start()
+    try:
+        yield {"127.0.0.1:4532": f"127.0.0.1:{rig.port}", "127.0.0.1:1234": f"127.0.0.1:{iq.port}"}
+    finally:
+        iq.stop()
+        rig.stop()
 
 
 @pytest.fixture(scope="module")
@@ -76,7 +107,7 @@ def test_the_usage_block_is_found():
 
 
 @pytest.mark.slow
-def test_every_usage_line_runs(workdir, sim_url):
+def test_every_usage_line_runs(workdir, sim_url, receivers):
     env = {**os.environ, "MPLBACKEND": "Agg"}
     env.pop("NULLSTEER_LINK", None)
     ran = []
@@ -85,7 +116,7 @@ def test_every_usage_line_runs(workdir, sim_url):
         if line in HARDWARE_ONLY or command == "sim":
             continue  # sim: the fixture above ran it and read its "link: URL"
         if command in LONG_RUNNING:
-            proc = subprocess.Popen(_argv(line, sim_url), cwd=workdir, env=env, text=True,
+            proc = subprocess.Popen(_argv(line, sim_url, receivers), cwd=workdir, env=env, text=True,
                                     stdout=subprocess.PIPE, stderr=subprocess.PIPE,
                                     stdin=subprocess.DEVNULL)
             try:
@@ -96,7 +127,7 @@ def test_every_usage_line_runs(workdir, sim_url):
                 proc.wait(timeout=30)
             ran.append((line, first))
             continue
-        proc = subprocess.run(_argv(line, sim_url), cwd=workdir, env=env, capture_output=True,
+        proc = subprocess.run(_argv(line, sim_url, receivers), cwd=workdir, env=env, capture_output=True,
                               text=True, timeout=300, stdin=subprocess.DEVNULL)
         assert proc.returncode == 0, f"{line}\nexit {proc.returncode}\n{proc.stderr[-2000:]}"
         assert "Traceback" not in proc.stderr, line
