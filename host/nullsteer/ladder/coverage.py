@@ -30,8 +30,9 @@ def log_settings(settings_ohm: np.ndarray) -> np.ndarray:
     return np.sort(np.log(np.maximum(s, _TINY_OHM)), axis=-1)
 
 
-def worst_log_error_rows(x_sorted: np.ndarray, lo_log: float, hi_log: float) -> np.ndarray:
-    """Worst nominal log error for each row of sorted log settings.
+def gap_errors_rows(x_sorted: np.ndarray, lo_log: float, hi_log: float) -> np.ndarray:
+    """Per row, the worst log error inside each stretch of [lo_log, hi_log] between
+    neighbouring settings, and below the first and above the last setting.
 
     Parameters
     ----------
@@ -42,22 +43,25 @@ def worst_log_error_rows(x_sorted: np.ndarray, lo_log: float, hi_log: float) -> 
 
     Returns
     -------
-    ndarray, shape (N,)
-        ``max over ln R in [lo_log, hi_log] of min_m |x_m - ln R|``.
+    ndarray, shape (N, M + 1)
+        Column 0: below the first setting, 1 .. M-1: between settings m-1 and m, M: above
+        the last; 0 for a stretch outside the range. The row maximum is the worst error.
     """
     x = np.atleast_2d(x_sorted)
-    below = np.maximum(x[:, 0] - lo_log, 0.0)
-    above = np.maximum(hi_log - x[:, -1], 0.0)
-    worst = np.maximum(below, above)
-    if x.shape[1] > 1:
-        left, right = x[:, :-1], x[:, 1:]
-        p = np.maximum(left, lo_log)
-        q = np.minimum(right, hi_log)
-        c = np.clip(0.5 * (left + right), p, q)
-        tent = np.minimum(c - left, right - c)
-        tent = np.where(p <= q, tent, 0.0)
-        worst = np.maximum(worst, tent.max(axis=1))
-    return worst
+    below = np.maximum(x[:, :1] - lo_log, 0.0)
+    above = np.maximum(hi_log - x[:, -1:], 0.0)
+    left, right = x[:, :-1], x[:, 1:]
+    p = np.maximum(left, lo_log)
+    q = np.minimum(right, hi_log)
+    c = np.clip(0.5 * (left + right), p, q)
+    tent = np.where(p <= q, np.minimum(c - left, right - c), 0.0)
+    return np.concatenate((below, tent, above), axis=1)
+
+
+def worst_log_error_rows(x_sorted: np.ndarray, lo_log: float, hi_log: float) -> np.ndarray:
+    """Worst nominal log error for each row of sorted log settings: shape (N, M) ->
+    (N,), ``max over ln R in [lo_log, hi_log] of min_m |x_m - ln R|``."""
+    return gap_errors_rows(x_sorted, lo_log, hi_log).max(axis=1)
 
 
 def worst_log_error(settings_ohm: np.ndarray, lo_ohm: float, hi_ohm: float) -> float:
