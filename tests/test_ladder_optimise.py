@@ -74,18 +74,30 @@ def test_optimum_beats_binary_weighting():
             binary_weighted(t, 400, 2500, n, cands).log_error
 
 
-def test_worst_case_with_tolerance_matches_brute_force():
-    # Direct check of the tolerance shift: for each wanted R, the best setting's worst
-    # ratio over builds at ±t; maximise over a dense grid of R.
+def test_worst_case_with_tolerance_for_the_boards_rule():
+    # Brute force over a dense grid of wanted R: the board picks the nominal setting
+    # nearest R by ratio (the codec's nearest_index, the board's own rule), and that
+    # setting may be built anywhere in [s(1-t), s(1+t)]; maximise over R.
+    from nullsteer.protocol.wire import nearest_index
     rng = np.random.default_rng(1)
     s = np.sort(rng.uniform(300, 3000, 40))
     lo, hi, t = 400.0, 2500.0, 0.05
-    r = np.geomspace(lo, hi, 200001)
-    ratio = np.maximum(s[:, None] * (1 + t) / r, r / (s[:, None] * (1 - t))).min(axis=0)
+    r = np.geomspace(lo, hi, 20001)
+    table = list(s)
+    chosen = np.array([s[nearest_index(table, float(x))] for x in r])
+    ratio = np.maximum(chosen * (1 + t) / r, r / (chosen * (1 - t)))
     brute = math.log(ratio.max())
     exact = math.log(1 + worst_case_error_pct(s, lo, hi, 5.0) / 100)
     step = math.log(hi / lo) / (r.size - 1)          # the grid can miss the peak by a step
     assert brute - 1e-12 <= exact <= brute + step
+
+
+def test_worst_step_counts_only_the_range():
+    # Hand count: settings 300, 500, 1000, 3000 over 400..2500 ohm: the in-range steps
+    # are 500/400, 1000/500 and 2500/1000 (the straddling pairs clipped): 150 %.
+    from nullsteer.ladder.coverage import worst_step_pct
+    assert worst_step_pct(np.array([300.0, 500, 1000, 3000]), 400, 2500) == pytest.approx(150.0)
+    assert worst_step_pct(np.array([100.0, 5000.0]), 400, 2500) == pytest.approx(525.0)
 
 
 def test_worst_error_matches_dense_sampling():
