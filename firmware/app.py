@@ -9,6 +9,7 @@ drive the same object.
 
 import wire
 from relays import ENDS, ROLES, State
+from store import parse_rows
 
 try:
     from typing import TYPE_CHECKING
@@ -59,6 +60,9 @@ class App:
                 self.has_open = True
         self.masks = cfg.table_masks
         self.ohms = cfg.table_ohms
+        self.staged_masks = []  # type: list
+        self.staged_ohms = []  # type: list
+        self.staged_rows = 0
 
     # --- boot -------------------------------------------------------------------------
     def boot(self) -> bytes:
@@ -66,6 +70,9 @@ class App:
         return the boot event line."""
         state, boots = self.store.load()
         self.store.discard_tmp()
+        loaded = self.store.load_table(self.bank.bits)
+        if loaded is not None:  # a table written over the link replaces the config's
+            self._use_table(loaded[0], loaded[1])
         self.restored = state is not None and self.cfg.boot == "restore"
         if state is None or not self.restored:
             state = self.cfg.safe_state
@@ -160,6 +167,38 @@ class App:
             parts.append(item)
             size += len(item) + 1
         return [("start", start), ("n", len(parts)), ("t", ",".join(parts))]
+
+    def _use_table(self, masks: list, ohms: list) -> None:
+        from array import array
+        self.masks, self.ohms = array("H", masks), array("f", ohms)
+
+    def _do_tload(self, seq: int, f: dict) -> list:
+        """Stage rows of a new ladder table; the last chunk saves it atomically and only
+        then puts it in use (an interrupted transfer leaves the old table)."""
+        rows = wire.field_int(f, "rows", 1, 1 << self.bank.bits, seq)
+        start = wire.field_int(f, "start", 0, rows - 1, seq)
+        if "t" not in f:
+            raise wire.WireError(wire.E_MISSING, "missing t", seq)
+        if start == 0:
+            self.staged_masks, self.staged_ohms, self.staged_rows = [], [], rows
+        elif rows != self.staged_rows or start != len(self.staged_masks):
+            raise wire.WireError(wire.E_RANGE, "expected start=%d rows=%d" % (
+                len(self.staged_masks), self.staged_rows), seq)
+        masks = list(self.staged_masks)
+        ohms = list(self.staged_ohms)
+        parse_rows(f["t"], self.bank.bits, masks, ohms, seq)
+        if len(masks) > rows:
+            raise wire.WireError(wire.E_RANGE, "more than rows=%d" % rows, seq)
+        self.staged_masks, self.staged_ohms = masks, ohms
+        if len(masks) < rows:
+            return [("staged", len(masks)), ("rows", rows)]
+        if len(set(masks)) != rows:
+            self.staged_masks, self.staged_ohms = [], []
+            raise wire.WireError(wire.E_RANGE, "a mask appears twice", seq)
+        self.staged_masks, self.staged_ohms = [], []
+        self.store.save_table(masks, ohms)   # OSError -> HW reply, the old table stays
+        self._use_table(masks, ohms)
+        return [("staged", rows), ("rows", rows), ("done", 1)]
 
     def _do_test(self, seq: int, f: dict) -> list:
         dwell = wire.field_int(f, "dwell_ms", 0, DWELL_MAX_MS, seq, 50)

@@ -370,3 +370,30 @@ def test_board_config_relay_errors():
     cfg["relays"] = [r for r in cfg["relays"] if r["role"] != "protect"]
     with pytest.raises(FW.boardcfg.BoardConfigError, match="protect"):
         FW.boardcfg.parse_board(cfg)
+
+
+def test_table_load_is_staged_checked_and_atomic(tmp_path):
+    # PROTOCOL.md, TLOAD: chunks in order; the new table is in use only after the last
+    # one; a bad or out-of-order chunk is refused and the old table stays.
+    b = InProcessBoard(config(), tmp_path)
+    b.boot()
+    old = req(b, 1, "TABLE", ("start", 0), ("count", 2)).fields["t"]
+    assert req(b, 2, "TLOAD", ("start", 0), ("rows", 3), ("t", "5:410.2,1:455.0")).fields == {
+        "staged": "2", "rows": "3"}
+    assert req(b, 3, "TABLE", ("start", 0), ("count", 2)).fields["t"] == old   # not yet
+    bad = req(b, 4, "TLOAD", ("start", 1), ("rows", 3), ("t", "3:498.7"))
+    assert bad.verb == "ERR" and bad.fields["code"] == "RANGE"                 # wrong start
+    assert req(b, 5, "TLOAD", ("start", 0), ("rows", 2), ("t", "5:500.0,1:400.0")).fields[
+        "code"] == "RANGE"                                                     # not sorted
+    assert req(b, 6, "TLOAD", ("start", 0), ("rows", 2), ("t", "5:400.0,5:500.0")).fields[
+        "code"] == "RANGE"                                                     # mask twice
+    assert req(b, 7, "TLOAD", ("start", 0), ("rows", 2), ("t", "200:400.0,5:500.0")).fields[
+        "code"] == "RANGE"                                                     # beyond 7 bits
+    assert req(b, 8, "INFO").fields["table"] == "128"
+    req(b, 9, "TLOAD", ("start", 0), ("rows", 3), ("t", "5:410.2,1:455.0"))
+    assert req(b, 10, "TLOAD", ("start", 2), ("rows", 3), ("t", "3:498.7")).fields["done"] == "1"
+    assert req(b, 11, "INFO").fields["table"] == "3"
+    assert req(b, 12, "SET", ("end", "A"), ("ohms", "460"), ("open", 0)).fields["mask"] == "1"
+    b2 = InProcessBoard(config(), tmp_path)                    # power cut and reboot
+    b2.boot()
+    assert req(b2, 1, "TABLE").fields["t"] == "5:410.2,1:455.0,3:498.7"

@@ -213,6 +213,24 @@ class Controller:
             self._table = rows
         return self._table
 
+    def load_table(self, rows: list[tuple[int, float]]) -> None:
+        """Write a new ladder table to the board (TLOAD, chunks within the line limit).
+
+        ``rows`` are (mask, ohms) sorted by ohms. The board stages the chunks and puts
+        the table in use, saved atomically, only with the last one; signed like every
+        frame when the controller has a key."""
+        items = ["%d:%s" % (m, wire.format_ohms(r)) for m, r in rows]
+        k = 0
+        while k < len(items):
+            chunk: list[str] = []
+            while k < len(items) and len(",".join(chunk + [items[k]])) <= wire.MAX_VALUE:
+                chunk.append(items[k])
+                k += 1
+            self.request("TLOAD", (("start", k - len(chunk)), ("rows", len(items)),
+                                   ("t", ",".join(chunk))))
+        self._table = None
+        self._info = None
+
     def set_state(self, fed_end: FedEnd, mask: int, open_: bool) -> BoardStatus:
         """Be in this state. The mask is checked against the board's bits before sending."""
         info = self.info()

@@ -54,6 +54,7 @@ REQUEST_KEYS = {
     "SET": ("end", "mask", "open", "ohms"),
     "TEST": ("dwell_ms",),
     "TABLE": ("start", "count"),
+    "TLOAD": ("start", "rows", "t"),
 }
 AUTH_KEYS = ("ts", "sig")
 REPLY_VERBS = ("OK", "ERR", "EVT")
