@@ -55,9 +55,12 @@ class App:
         self.restored = False
         self.t0_ms = clock.ticks_ms()
         self.has_open = False
+        self.has_short = False
         for r in cfg.relays:
             if r.role == "open":
                 self.has_open = True
+            if r.role == "short":
+                self.has_short = True
         self.masks = cfg.table_masks
         self.ohms = cfg.table_ohms
         self.staged_masks = []  # type: list
@@ -74,6 +77,8 @@ class App:
         if loaded is not None:  # a table written over the link replaces the config's
             self._use_table(loaded[0], loaded[1])
         self.restored = state is not None and self.cfg.boot == "restore"
+        if state is not None and state.short and not self.has_short:
+            self.restored = False  # saved on another board config: start safe
         if state is None or not self.restored:
             state = self.cfg.safe_state
         self.boots = boots + 1
@@ -101,6 +106,8 @@ class App:
 
     def _state_fields(self, state: State) -> list:
         out = [("end", state.end), ("mask", state.mask), ("open", state.open_)]
+        if self.has_short:
+            out.append(("short", state.short))
         for k in range(len(self.masks)):
             if self.masks[k] == state.mask:
                 out.append(("ohms", wire.format_ohms(self.ohms[k])))
@@ -139,7 +146,12 @@ class App:
         open_ = wire.field_bool(f, "open", seq)
         if open_ and not self.has_open:
             raise wire.WireError(wire.E_RANGE, "board has no open relay", seq)
-        return State(end, mask, open_)
+        short = wire.field_bool(f, "short", seq, False)
+        if short and not self.has_short:
+            raise wire.WireError(wire.E_RANGE, "board has no short relay", seq)
+        if short and open_:
+            raise wire.WireError(wire.E_RANGE, "open and short exclude each other", seq)
+        return State(end, mask, open_, short)
 
     def _do_set(self, seq: int, f: dict) -> list:
         target = self._target(seq, f)

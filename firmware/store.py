@@ -47,8 +47,12 @@ class PosixFs:
 
 def encode_state(state: State, boots: int) -> bytes:
     """The state file's content for ``state`` after ``boots`` boots."""
-    return wire.encode(0, "EVT", (("kind", "state"), ("end", state.end), ("mask", state.mask),
-                                  ("open", state.open_), ("boots", boots)))
+    fields = [("kind", "state"), ("end", state.end), ("mask", state.mask),
+              ("open", state.open_)]
+    if state.short:
+        fields.append(("short", 1))
+    fields.append(("boots", boots))
+    return wire.encode(0, "EVT", fields)
 
 
 def decode_state(data: bytes, bits: int, has_open: bool) -> "tuple[State, int]":
@@ -62,8 +66,11 @@ def decode_state(data: bytes, bits: int, has_open: bool) -> "tuple[State, int]":
     open_ = wire.field_bool(f, "open")
     if open_ and not has_open:
         raise ValueError("open state on a board without an open relay")
+    short = wire.field_bool(f, "short", 0, False)
+    if short and open_:
+        raise ValueError("open and short together")
     boots = wire.field_int(f, "boots", 0, 2 ** 30)
-    return State(end, mask, open_), boots
+    return State(end, mask, open_, short), boots
 
 
 def parse_rows(text: str, bits: int, masks: list, ohms: list, seq: int = 0) -> None:

@@ -29,10 +29,11 @@ class BoardState:
     mask: int
     open: bool
     ohms: float | None = None
+    short: bool = False
 
     def to_json(self) -> dict[str, object]:
         return {"fed_end": self.fed_end.value, "mask": self.mask, "open": self.open,
-                "ohms": self.ohms}
+                "short": self.short, "ohms": self.ohms}
 
 
 @dataclass(frozen=True)
@@ -87,7 +88,8 @@ def state_from_fields(fields: dict[str, str]) -> BoardState:
     """A :class:`BoardState` from the fields of an OK reply to STATUS or SET."""
     try:
         ohms = float(fields["ohms"]) if "ohms" in fields else None
-        return BoardState(FedEnd(fields["end"]), int(fields["mask"]), fields["open"] == "1", ohms)
+        return BoardState(FedEnd(fields["end"]), int(fields["mask"]), fields["open"] == "1", ohms,
+                          fields.get("short") == "1")
     except (KeyError, ValueError) as exc:
         raise LinkError(f"board reply lacks a valid state field ({exc})") from None
 
@@ -231,14 +233,21 @@ class Controller:
         self._table = None
         self._info = None
 
-    def set_state(self, fed_end: FedEnd, mask: int, open_: bool) -> BoardStatus:
-        """Be in this state. The mask is checked against the board's bits before sending."""
+    def set_state(self, fed_end: FedEnd, mask: int, open_: bool,
+                  short: bool = False) -> BoardStatus:
+        """Be in this state. The mask is checked against the board's bits before sending;
+        ``short`` (termination shorted) needs a board with a ``short`` relay and is sent
+        only when set (its absence means not shorted)."""
         info = self.info()
         if not 0 <= mask <= info.max_mask:
             raise ConfigError("--mask", f"{mask} is outside 0..{info.max_mask} "
                                         f"for this board's {info.bits} ladder relays")
-        f = self.request("SET", (("end", fed_end.value), ("mask", mask), ("open", open_)))
-        return self._after_set(f)
+        if short and "short" not in info.roles:
+            raise ConfigError("--short", "this board has no relay of role short")
+        fields: list[tuple[str, object]] = [("end", fed_end.value), ("mask", mask), ("open", open_)]
+        if short:
+            fields.append(("short", 1))
+        return self._after_set(self.request("SET", fields))
 
     def _after_set(self, fields: dict[str, str]) -> BoardStatus:
         # SET replies carry the state; fetch housekeeping with it for a full status.
@@ -252,7 +261,7 @@ class Controller:
     def flip(self) -> BoardStatus:
         """Swap fed and terminated ends, keeping the termination."""
         now = self.status().state
-        return self.set_state(now.fed_end.other, now.mask, now.open)
+        return self.set_state(now.fed_end.other, now.mask, now.open, now.short)
 
     def self_test(self, dwell_ms: int = 50) -> dict[str, str]:
         """Run the board's relay self-test (receiver protected throughout)."""

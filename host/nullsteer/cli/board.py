@@ -56,10 +56,10 @@ def end_a_bearing(config_path: str | None, flag: str) -> float:
 def describe(status: BoardStatus, end_a_deg: float | None = None) -> str:
     """One human line for a board state."""
     s = status.state
-    term = "open (no termination)" if s.open else (
+    term = "open (no termination)" if s.open else "shorted (closed loop: figure-8)" if s.short else (
         f"{s.ohms:.1f} ohm (mask {s.mask})" if s.ohms is not None else f"mask {s.mask}")
     text = f"fed end {s.fed_end.value}, termination {term}"
-    if end_a_deg is not None and not s.open:
+    if end_a_deg is not None and not (s.open or s.short):
         text += f", null toward {null_bearing_deg(s.fed_end.value, end_a_deg):.0f} deg"
     if status.changed is not None:
         text += "" if status.changed else " (already so: no relay moved)"
@@ -130,9 +130,10 @@ def choose_mask_for_ohms(ctl: Controller, ohms: float) -> tuple[int, float, floa
 
 
 def run_set(args: argparse.Namespace) -> int:
-    if args.mask is None and args.ohms is None and not args.open and args.fed_end is None \
-            and args.null_bearing is None:
-        raise ConfigError("set", "say what to set: --fed-end/--null-bearing and/or --mask/--ohms/--open")
+    if args.mask is None and args.ohms is None and not args.open and not args.short \
+            and args.fed_end is None and args.null_bearing is None:
+        raise ConfigError("set", "say what to set: --fed-end/--null-bearing and/or "
+                                 "--mask/--ohms/--open/--short")
     if args.ohms is not None and not args.ohms > 0:
         raise ConfigError("--ohms", f"must be > 0, got {args.ohms:g}")
     wanted_end = args.fed_end
@@ -147,7 +148,9 @@ def run_set(args: argparse.Namespace) -> int:
     with connect(args) as ctl:
         now = ctl.status().state
         end = wanted_end or now.fed_end
-        mask, open_ = now.mask, now.open
+        mask, open_, short = now.mask, now.open, now.short
+        if args.mask is not None or args.ohms is not None or args.open:
+            short = False
         if args.mask is not None:
             mask, open_ = args.mask, False
         if args.ohms is not None:
@@ -158,7 +161,9 @@ def run_set(args: argparse.Namespace) -> int:
                 f"nearest setting to {args.ohms:g} ohm: mask {mask} = {r_set:.1f} ohm ({err:+.1f} %)")
         if args.open:
             open_ = True
-        status = ctl.set_state(end, mask, open_)
+        if args.short:
+            open_, short = False, True
+        status = ctl.set_state(end, mask, open_, short)
     if note:
         extra["note"] = note
     _print_status(args, status, extra)
@@ -241,6 +246,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     term.add_argument("--ohms", type=positive_float("--ohms"),
                       help="wanted termination; the nearest ladder setting by ratio is used")
     term.add_argument("--open", action="store_true", help="disconnect the termination (no rear null)")
+    term.add_argument("--short", action="store_true",
+                      help="short the termination (closed loop, figure-8; needs a short relay)")
     add_json_flag(p)
     p.set_defaults(func=run_set)
 

@@ -132,9 +132,10 @@ def _allow(r_ohm: np.ndarray | float) -> np.ndarray | float:
 
 
 def calibrate(design: LadderDesign, resistors: list[tuple[str, float]] | None = None,
-              settings: list[tuple[int, float]] | None = None,
+              settings: list[tuple[str, float]] | None = None,
               flag_names: tuple[str, str] = ("--resistors", "--settings")) -> Calibration:
-    """Fit the parts of ``design`` to the measurements (see the module docstring)."""
+    """Fit the parts of ``design`` to the measurements (see the module docstring):
+    ``resistors`` (ref, ohms) and ``settings`` (mask as text, ohms)."""
     nominal = _nominal(design)
     refs = list(nominal)
     meter = {}

@@ -106,34 +106,6 @@ def _kick(vec: np.ndarray, kinds: list[np.ndarray], rng: np.random.Generator) ->
     return out
 
 
-def _pair_moves(topology: Topology, vec: np.ndarray, n: int, kinds: list[np.ndarray],
-                lo_ohm: float, hi_ohm: float, deadline: float, reach: int = 3
-                ) -> tuple[np.ndarray, float]:
-    """Descent in the neighbourhood of every pair of positions moved up to ``reach``
-    candidates each (all such moves evaluated in one batch per step)."""
-    idx = _indices(vec, kinds)
-    sizes = np.array([pool.size for pool in kinds])
-    d = np.array([(a, b) for a in range(-reach, reach + 1) for b in range(-reach, reach + 1)
-                  if (a, b) != (0, 0)])
-    moves = []
-    for i, j in itertools.combinations(range(idx.size), 2):
-        m = np.zeros((d.shape[0], idx.size), dtype=int)
-        m[:, i], m[:, j] = d[:, 0], d[:, 1]
-        moves.append(m)
-    step = np.concatenate(moves)
-    w, nm = scores(topology, vec[:1], vec[None, 1:1 + n], vec[None, 1 + n:], lo_ohm, hi_ohm)
-    h, norm = float(w[0]), float(nm[0])
-    while time.perf_counter() < deadline:
-        cand = np.clip(idx[None, :] + step, 0, sizes[None, :] - 1)
-        vals = np.stack([kinds[j][cand[:, j]] for j in range(idx.size)], axis=1)
-        err, nrm = scores(topology, vals[:, 0], vals[:, 1:1 + n], vals[:, 1 + n:], lo_ohm, hi_ohm)
-        i = int(np.lexsort((nrm, err))[0])
-        if not (err[i] < h - 1e-15 or (err[i] <= h + 1e-15 and nrm[i] < norm * (1 - 1e-9))):
-            break
-        h, norm, idx = float(err[i]), float(nrm[i]), cand[i]
-    return np.array([kinds[j][idx[j]] for j in range(idx.size)]), h
-
-
 def local_search(topology: Topology, start: LadderValues, lo_ohm: float, hi_ohm: float,
                  pools: Pools, kicks: int = 40, deadline: float = math.inf,
                  seed: int = 1) -> tuple[LadderValues, float]:

@@ -51,7 +51,7 @@ REQUEST_KEYS = {
     "PING": (),
     "INFO": (),
     "STATUS": (),
-    "SET": ("end", "mask", "open", "ohms"),
+    "SET": ("end", "mask", "open", "ohms", "short"),
     "TEST": ("dwell_ms",),
     "TABLE": ("start", "count"),
     "TLOAD": ("start", "rows", "t"),
