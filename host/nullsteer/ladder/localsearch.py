@@ -20,6 +20,7 @@ import numpy as np
 from nullsteer.ladder.coverage import gap_errors_rows, worst_log_error_rows
 
 _P = 12.0
+_WINDOW = 6
 from nullsteer.ladder.topology import LadderValues, Topology
 
 
@@ -73,7 +74,9 @@ def _rows(topology: Topology, vec: np.ndarray, n: int, pos: int, pool: np.ndarra
 
 def descend(topology: Topology, start: LadderValues, lo_ohm: float, hi_ohm: float,
             pools: Pools, deadline: float = math.inf) -> tuple[LadderValues, float]:
-    """Coordinate descent from ``start``: (build, its log error)."""
+    """Coordinate descent from ``start``: (build, its log error). Each move tries the
+    candidates within ``_WINDOW`` places of the present value (the kicks make the
+    longer jumps)."""
     n = len(start.chain_ohm)
     vec = _vector(canonical(topology, start))
     w, nm = scores(topology, vec[:1], vec[None, 1:1 + n], vec[None, 1 + n:], lo_ohm, hi_ohm)
@@ -82,7 +85,9 @@ def descend(topology: Topology, start: LadderValues, lo_ohm: float, hi_ohm: floa
     improved = True
     while improved and time.perf_counter() < deadline:
         improved = False
-        for pos, pool in enumerate(kinds):
+        for pos, full in enumerate(kinds):
+            at = int(np.searchsorted(full, vec[pos]))
+            pool = full[max(0, at - _WINDOW):at + _WINDOW + 1]
             err, nrm = scores(topology, *_rows(topology, vec, n, pos, pool), lo_ohm, hi_ohm)
             i = int(np.lexsort((nrm, err))[0])
             if err[i] < h - 1e-15 or (err[i] <= h + 1e-15 and nrm[i] < norm * (1 - 1e-9)):

@@ -428,7 +428,7 @@ def branch_and_bound(topology: Topology, lo_ohm: float, hi_ohm: float, relays: i
     if incumbent is None:
         seed_end = deadline if time_budget_s is None else t0 + _SEED_SHARE * time_budget_s
         incumbent = seed_search(topology, lo_ohm, hi_ohm, relays, cands, seed_end,
-                                kicks=40 if time_budget_s is not None else 8)
+                                kicks=60 if time_budget_s is not None else 8)
     search = _Search(lo_ohm, hi_ohm, n_chain, np.asarray(cands.chain_ohm, dtype=float),
                      incumbent.log_error + 1e-9, canonical(topology, incumbent.values),
                      node_budget, deadline)
