@@ -9,6 +9,7 @@ drive the same object.
 
 import wire
 from relays import ENDS, ROLES, State
+from store import parse_rows
 
 try:
     from typing import TYPE_CHECKING
@@ -54,11 +55,17 @@ class App:
         self.restored = False
         self.t0_ms = clock.ticks_ms()
         self.has_open = False
+        self.has_short = False
         for r in cfg.relays:
             if r.role == "open":
                 self.has_open = True
+            if r.role == "short":
+                self.has_short = True
         self.masks = cfg.table_masks
         self.ohms = cfg.table_ohms
+        self.staged_masks = []  # type: list
+        self.staged_ohms = []  # type: list
+        self.staged_rows = 0
 
     # --- boot -------------------------------------------------------------------------
     def boot(self) -> bytes:
@@ -66,7 +73,12 @@ class App:
         return the boot event line."""
         state, boots = self.store.load()
         self.store.discard_tmp()
+        loaded = self.store.load_table(self.bank.bits)
+        if loaded is not None:  # a table written over the link replaces the config's
+            self._use_table(loaded[0], loaded[1])
         self.restored = state is not None and self.cfg.boot == "restore"
+        if state is not None and state.short and not self.has_short:
+            self.restored = False  # saved on another board config: start safe
         if state is None or not self.restored:
             state = self.cfg.safe_state
         self.boots = boots + 1
@@ -94,6 +106,8 @@ class App:
 
     def _state_fields(self, state: State) -> list:
         out = [("end", state.end), ("mask", state.mask), ("open", state.open_)]
+        if self.has_short:
+            out.append(("short", state.short))
         for k in range(len(self.masks)):
             if self.masks[k] == state.mask:
                 out.append(("ohms", wire.format_ohms(self.ohms[k])))
@@ -135,7 +149,12 @@ class App:
         open_ = wire.field_bool(f, "open", seq)
         if open_ and not self.has_open:
             raise wire.WireError(wire.E_RANGE, "board has no open relay", seq)
-        return State(end, mask, open_)
+        short = wire.field_bool(f, "short", seq, False)
+        if short and not self.has_short:
+            raise wire.WireError(wire.E_RANGE, "board has no short relay", seq)
+        if short and open_:
+            raise wire.WireError(wire.E_RANGE, "open and short exclude each other", seq)
+        return State(end, mask, open_, short)
 
     def _do_set(self, seq: int, f: dict) -> list:
         target = self._target(seq, f)
@@ -163,6 +182,38 @@ class App:
             parts.append(item)
             size += len(item) + 1
         return [("start", start), ("n", len(parts)), ("t", ",".join(parts))]
+
+    def _use_table(self, masks: list, ohms: list) -> None:
+        from array import array
+        self.masks, self.ohms = array("H", masks), array("f", ohms)
+
+    def _do_tload(self, seq: int, f: dict) -> list:
+        """Stage rows of a new ladder table; the last chunk saves it atomically and only
+        then puts it in use (an interrupted transfer leaves the old table)."""
+        rows = wire.field_int(f, "rows", 1, 1 << self.bank.bits, seq)
+        start = wire.field_int(f, "start", 0, rows - 1, seq)
+        if "t" not in f:
+            raise wire.WireError(wire.E_MISSING, "missing t", seq)
+        if start == 0:
+            self.staged_masks, self.staged_ohms, self.staged_rows = [], [], rows
+        elif rows != self.staged_rows or start != len(self.staged_masks):
+            raise wire.WireError(wire.E_RANGE, "expected start=%d rows=%d" % (
+                len(self.staged_masks), self.staged_rows), seq)
+        masks = list(self.staged_masks)
+        ohms = list(self.staged_ohms)
+        parse_rows(f["t"], self.bank.bits, masks, ohms, seq)
+        if len(masks) > rows:
+            raise wire.WireError(wire.E_RANGE, "more than rows=%d" % rows, seq)
+        self.staged_masks, self.staged_ohms = masks, ohms
+        if len(masks) < rows:
+            return [("staged", len(masks)), ("rows", rows)]
+        if len(set(masks)) != rows:
+            self.staged_masks, self.staged_ohms = [], []
+            raise wire.WireError(wire.E_RANGE, "a mask appears twice", seq)
+        self.staged_masks, self.staged_ohms = [], []
+        self.store.save_table(masks, ohms)   # OSError -> HW reply, the old table stays
+        self._use_table(masks, ohms)
+        return [("staged", rows), ("rows", rows), ("done", 1)]
 
     def _do_test(self, seq: int, f: dict) -> list:
         dwell = wire.field_int(f, "dwell_ms", 0, DWELL_MAX_MS, seq, 50)

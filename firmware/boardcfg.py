@@ -7,7 +7,8 @@ Every problem raises :class:`BoardConfigError` naming the offending key.
 from array import array
 
 from drivercfg import BoardConfigError, parse_driver  # the error class lives in the lower reader
-from relays import ENDS, ROLE_LADDER, ROLE_OPEN, ROLE_PROTECT, ROLE_REVERSE, ROLES, Relay, State
+from relays import (ENDS, ROLE_LADDER, ROLE_OPEN, ROLE_PROTECT, ROLE_REVERSE, ROLE_SHORT, ROLES,
+                    Relay, State)
 
 TOP_KEYS = ("board", "relays", "protect_ladder", "link", "boot", "safe_state", "state_file",
             "watchdog_ms", "ladder", "test_write_pause_ms", "driver", "mqtt")
@@ -130,18 +131,26 @@ def parse_relays(items: object, cfg: BoardConfig) -> None:
         raise BoardConfigError("relays", "need exactly one relay of role protect")
     if counts.get(ROLE_OPEN, 0) > 1:
         raise BoardConfigError("relays", "at most one relay of role open")
+    if counts.get(ROLE_SHORT, 0) > 1:
+        raise BoardConfigError("relays", "at most one relay of role short")
 
 
-def parse_state(obj: object, key: str, bits: int, has_open: bool) -> State:
+def parse_state(obj: object, key: str, bits: int, has_open: bool,
+                has_short: bool = False) -> State:
     if not isinstance(obj, dict):
         raise BoardConfigError(key, "must be an object with end, mask, open")
-    _unknown(obj, ("end", "mask", "open"), key + ".")
+    _unknown(obj, ("end", "mask", "open", "short"), key + ".")
     end = _str(obj, "end", "A", key + ".", ENDS)
     mask = _int(obj, "mask", 0, (1 << bits) - 1, 0, key + ".")
     open_ = _bool(obj, "open", False, key + ".")
     if open_ and not has_open:
         raise BoardConfigError(key + ".open", "board has no open relay")
-    return State(end, mask, open_)
+    short = _bool(obj, "short", False, key + ".")
+    if short and not has_short:
+        raise BoardConfigError(key + ".short", "board has no short relay")
+    if short and open_:
+        raise BoardConfigError(key + ".short", "open and short exclude each other")
+    return State(end, mask, open_, short)
 
 
 def parse_table(ladder: object, cfg: BoardConfig) -> None:
@@ -207,14 +216,17 @@ def parse_board(obj: object) -> BoardConfig:
     cfg.name = _str(obj, "board", None, "")
     parse_relays(obj.get("relays"), cfg)
     has_open = False
+    has_short = False
     for r in cfg.relays:
         if r.role == ROLE_OPEN:
             has_open = True
+        if r.role == ROLE_SHORT:
+            has_short = True
     cfg.protect_ladder = _bool(obj, "protect_ladder", True, "")
     cfg.link = parse_link(obj.get("link"))
     cfg.boot = _str(obj, "boot", "restore", "", BOOT_POLICIES)
     cfg.safe_state = parse_state(obj.get("safe_state", {}),
-                                 "safe_state", cfg.bits, has_open)
+                                 "safe_state", cfg.bits, has_open, has_short)
     cfg.state_file = _str(obj, "state_file", "ns_state.txt", "")
     cfg.watchdog_ms = _int(obj, "watchdog_ms", 0, 600000, 0, "")
     if 0 < cfg.watchdog_ms < 500:

@@ -11,10 +11,14 @@ Roles
              relay, or two relays (one per corner), all driven together.
 ``protect``  energised = receiver input shorted / disconnected; de-energised = listening.
 ``open``     energised = termination disconnected (no rear null).
+``short``    energised = termination shorted (the closed loop: figure-8, nulls
+             broadside). Open and short are never both requested.
 
 Switching order (:meth:`RelayBank.go`): protect on -> settle -> swap the ends -> settle ->
-ladder and open relays -> settle -> protect off. The protect step is taken whenever the
-fed end changes, and for ladder/open changes only when ``protect_ladder`` is true.
+ladder, open and short relays -> settle -> protect off; when open or short is released
+and the other engaged, the release comes first and settles (break before make). The
+protect step is taken whenever the fed end changes, and for ladder/open/short changes
+only when ``protect_ladder`` is true.
 """
 
 try:
@@ -28,26 +32,29 @@ ROLE_LADDER = "ladder"
 ROLE_REVERSE = "reverse"
 ROLE_PROTECT = "protect"
 ROLE_OPEN = "open"
-ROLES = (ROLE_LADDER, ROLE_REVERSE, ROLE_PROTECT, ROLE_OPEN)
+ROLE_SHORT = "short"
+ROLES = (ROLE_LADDER, ROLE_REVERSE, ROLE_PROTECT, ROLE_OPEN, ROLE_SHORT)
 ENDS = ("A", "B")
 
 
 class State:
-    """A switching state: fed ``end`` ("A"/"B"), ladder ``mask`` (int), ``open_`` (bool)."""
+    """A switching state: fed ``end`` ("A"/"B"), ladder ``mask`` (int), ``open_`` (bool),
+    ``short`` (bool; never together with ``open_``)."""
 
-    def __init__(self, end: str, mask: int, open_: bool) -> None:
+    def __init__(self, end: str, mask: int, open_: bool, short: bool = False) -> None:
         self.end = end
         self.mask = mask
         self.open_ = open_
+        self.short = short
 
     def __eq__(self, other: object) -> bool:
         if not isinstance(other, State):
             return False
         return (self.end == other.end and self.mask == other.mask
-                and self.open_ == other.open_)
+                and self.open_ == other.open_ and self.short == other.short)
 
     def __repr__(self) -> str:
-        return "State(%r, %d, %r)" % (self.end, self.mask, self.open_)
+        return "State(%r, %d, %r, %r)" % (self.end, self.mask, self.open_, self.short)
 
 
 class Relay:
@@ -142,6 +149,8 @@ class RelayBank:
             return state.end == "B"
         if r.role == ROLE_OPEN:
             return state.open_
+        if r.role == ROLE_SHORT:
+            return state.short
         return self.driver.get(k)  # protect: left as it is
 
     def _switch(self, indices: list, state: State) -> None:
@@ -189,7 +198,12 @@ class RelayBank:
             self._protect(True)
         if swap:
             self._switch(self._indices(ROLE_REVERSE), target)
-        self._switch(self._indices(ROLE_LADDER) + self._indices(ROLE_OPEN), target)
+        term = self._indices(ROLE_LADDER) + self._indices(ROLE_OPEN) + self._indices(ROLE_SHORT)
+        cur = self.state
+        if (cur.open_ and target.short) or (cur.short and target.open_):
+            # break before make: release the old termination mode first
+            self._switch(term, State(target.end, cur.mask, False, False))
+        self._switch(term, target)
         if protect:
             self._protect(False)
         self.state = target

@@ -51,8 +51,12 @@ class PosixFs:
 
 def encode_state(state: State, boots: int) -> bytes:
     """The state file's content for ``state`` after ``boots`` boots."""
-    return wire.encode(0, "EVT", (("kind", "state"), ("end", state.end), ("mask", state.mask),
-                                  ("open", state.open_), ("boots", boots)))
+    fields = [("kind", "state"), ("end", state.end), ("mask", state.mask),
+              ("open", state.open_)]
+    if state.short:
+        fields.append(("short", 1))
+    fields.append(("boots", boots))
+    return wire.encode(0, "EVT", fields)
 
 
 def decode_state(data: bytes, bits: int, has_open: bool) -> "tuple[State, int]":
@@ -66,8 +70,47 @@ def decode_state(data: bytes, bits: int, has_open: bool) -> "tuple[State, int]":
     open_ = wire.field_bool(f, "open")
     if open_ and not has_open:
         raise ValueError("open state on a board without an open relay")
+    short = wire.field_bool(f, "short", 0, False)
+    if short and open_:
+        raise ValueError("open and short together")
     boots = wire.field_int(f, "boots", 0, 2 ** 30)
-    return State(end, mask, open_), boots
+    return State(end, mask, open_, short), boots
+
+
+def parse_rows(text: str, bits: int, masks: list, ohms: list, seq: int = 0) -> None:
+    """Append the rows of ``mask:ohms,...`` to ``masks``/``ohms``, checking each mask
+    against ``bits`` and that ohms are finite, > 0 and ascending; raises WireError."""
+    for item in text.split(","):
+        mask_text, sep, ohm_text = item.partition(":")
+        if not sep:
+            raise wire.WireError(wire.E_FORMAT, "row %r is not mask:ohms" % item, seq)
+        mask = wire.field_int({"mask": mask_text}, "mask", 0, (1 << bits) - 1, seq)
+        r = wire.field_float({"ohms": ohm_text}, "ohms", 1e-3, 1e9, seq)
+        if ohms and r < ohms[-1]:
+            raise wire.WireError(wire.E_RANGE, "rows must be sorted by ohms", seq)
+        masks.append(mask)
+        ohms.append(r)
+
+
+def decode_table(data: bytes, bits: int) -> "tuple[list, list]":
+    """Parse a table file; raises WireError or ValueError when it is not complete."""
+    lines = [ln for ln in data.split(b"\n") if ln.strip()]
+    if not lines:
+        raise ValueError("empty table file")
+    head = wire.decode(lines[0])
+    if head.verb != "EVT" or head.fields.get("kind") != "table":
+        raise ValueError("not a table file")
+    rows = wire.field_int(head.fields, "rows", 1, 1 << bits)
+    masks = []  # type: list
+    ohms = []  # type: list
+    for ln in lines[1:]:
+        frame = wire.decode(ln)
+        if frame.fields.get("kind") != "rows":
+            raise ValueError("not a table row line")
+        parse_rows(frame.fields.get("t", ""), bits, masks, ohms)
+    if len(masks) != rows:
+        raise ValueError("table file has %d of %d rows" % (len(masks), rows))
+    return masks, ohms
 
 
 class AtomicRecord:
@@ -128,8 +171,11 @@ class AtomicRecord:
 
     def _commit(self, data: bytes) -> None:
         """Write ``data`` atomically; raises OSError when the file system fails."""
+        self._write(self.tmp, self.path, data)
+
+    def _write(self, tmp: str, path: str, data: bytes) -> None:
         fs = self.fs
-        f = fs.open(self.tmp, "wb")
+        f = fs.open(tmp, "wb")
         try:
             if self.pause_ms:
                 for i in range(0, len(data), 8):
@@ -144,11 +190,11 @@ class AtomicRecord:
         fs.sync()
         self._pause()
         try:
-            fs.rename(self.tmp, self.path)
+            fs.rename(tmp, path)
         except OSError:
-            fs.remove(self.path)
+            fs.remove(path)
             self._pause()
-            fs.rename(self.tmp, self.path)
+            fs.rename(tmp, path)
         fs.sync()
 
 
@@ -202,3 +248,29 @@ class StateStore(AtomicRecord):
     def save(self, state: State, boots: int) -> None:
         """Write the state atomically; raises OSError when the file system fails."""
         self._commit(encode_state(state, boots))
+
+    # --- the ladder table written over the link (TLOAD) ---------------------------
+    def save_table(self, masks: "Any", ohms: "Any") -> None:
+        """Write a ladder table atomically to ``<path>.table``: a header line with the
+        row count, then lines of up to 16 rows, each a checked protocol line."""
+        lines = [wire.encode(0, "EVT", (("kind", "table"), ("rows", len(masks))))]
+        for k in range(0, len(masks), 16):
+            items = ["%d:%s" % (masks[i], wire.format_ohms(ohms[i]))
+                     for i in range(k, min(len(masks), k + 16))]
+            lines.append(wire.encode(0, "EVT", (("kind", "rows"), ("t", ",".join(items)))))
+        self._write(self.path + ".table.tmp", self.path + ".table", b"".join(lines))
+
+    def load_table(self, bits: int) -> "tuple[list, list] | None":
+        """The table saved by :meth:`save_table` as (masks, ohms), or None when absent or
+        damaged (any line failing its check, a wrong count, unsorted). Never raises."""
+        for path in (self.path + ".table", self.path + ".table.tmp"):
+            try:
+                f = self.fs.open(path, "rb")
+                try:
+                    data = f.read()
+                finally:
+                    f.close()
+                return decode_table(data, bits)
+            except (OSError, ValueError, wire.WireError):
+                continue
+        return None

@@ -24,15 +24,18 @@ from pathlib import Path
 HERE = Path(__file__).resolve().parent
 OUT = HERE / "generated"
 
-#: The illustrative build drawn for each topology: the designer's optimum for a
-#: 400-2500 ohm range with 5 ladder relays, E24, 1 % (design_ladder, computed once and
-#: written down here, because the search takes minutes). Your own values come from
+#: The illustrative build drawn for each topology: the designer's best build for a
+#: 400-2500 ohm range with 5 ladder relays, E24, 1 % (design_ladder with its default
+#: time budget, computed once and written down here so the notes do not depend on the
+#: machine's speed). Your own values come from
 #: ``nullsteer ladder --config station.toml``; the wiring is the same.
 EXAMPLE = {"r_min_ohm": 400.0, "r_max_ohm": 2500.0, "relays": 5, "series": "E24",
            "tolerance_pct": 1.0}
 EXAMPLE_VALUES = {
     "series-shorting": (91.0, (120.0, 240.0, 330.0, 390.0, 1200.0), ()),
     "series-shunt": (240.0, (220.0, 330.0, 470.0, 1200.0), (5100.0,)),
+    "series-twin-shunt": (510.0, (220.0, 390.0, 1300.0), (8200.0, 3300.0)),
+    "series-split-shunt": (82.0, (430.0, 680.0, 1600.0), (6800.0, 2700.0)),
 }
 
 PROTECT_REF = "K_PROT"  # the receiver-protect relay (not part of the ladder's tree)

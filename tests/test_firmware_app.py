@@ -370,3 +370,69 @@ def test_board_config_relay_errors():
     cfg["relays"] = [r for r in cfg["relays"] if r["role"] != "protect"]
     with pytest.raises(FW.boardcfg.BoardConfigError, match="protect"):
         FW.boardcfg.parse_board(cfg)
+
+
+def test_table_load_is_staged_checked_and_atomic(tmp_path):
+    # PROTOCOL.md, TLOAD: chunks in order; the new table is in use only after the last
+    # one; a bad or out-of-order chunk is refused and the old table stays.
+    b = InProcessBoard(config(), tmp_path)
+    b.boot()
+    old = req(b, 1, "TABLE", ("start", 0), ("count", 2)).fields["t"]
+    assert req(b, 2, "TLOAD", ("start", 0), ("rows", 3), ("t", "5:410.2,1:455.0")).fields == {
+        "staged": "2", "rows": "3"}
+    assert req(b, 3, "TABLE", ("start", 0), ("count", 2)).fields["t"] == old   # not yet
+    bad = req(b, 4, "TLOAD", ("start", 1), ("rows", 3), ("t", "3:498.7"))
+    assert bad.verb == "ERR" and bad.fields["code"] == "RANGE"                 # wrong start
+    assert req(b, 5, "TLOAD", ("start", 0), ("rows", 2), ("t", "5:500.0,1:400.0")).fields[
+        "code"] == "RANGE"                                                     # not sorted
+    assert req(b, 6, "TLOAD", ("start", 0), ("rows", 2), ("t", "5:400.0,5:500.0")).fields[
+        "code"] == "RANGE"                                                     # mask twice
+    assert req(b, 7, "TLOAD", ("start", 0), ("rows", 2), ("t", "200:400.0,5:500.0")).fields[
+        "code"] == "RANGE"                                                     # beyond 7 bits
+    assert req(b, 8, "INFO").fields["table"] == "128"
+    req(b, 9, "TLOAD", ("start", 0), ("rows", 3), ("t", "5:410.2,1:455.0"))
+    assert req(b, 10, "TLOAD", ("start", 2), ("rows", 3), ("t", "3:498.7")).fields["done"] == "1"
+    assert req(b, 11, "INFO").fields["table"] == "3"
+    assert req(b, 12, "SET", ("end", "A"), ("ohms", "460"), ("open", 0)).fields["mask"] == "1"
+    b2 = InProcessBoard(config(), tmp_path)                    # power cut and reboot
+    b2.boot()
+    assert req(b2, 1, "TABLE").fields["t"] == "5:410.2,1:455.0,3:498.7"
+
+
+def _short_config():
+    cfg = config()
+    relays = cfg["relays"] + [{"name": "SHORT", "role": "short", "pin": 12, "settle_ms": 6}]
+    cfg["relays"] = relays
+    return cfg
+
+
+def test_short_state_exclusive_and_break_before_make(tmp_path):
+    # PROTOCOL.md, SET short=1: the termination shorted (closed loop). Open and short are
+    # mutually exclusive; going open -> short releases OPEN and lets it settle before
+    # SHORT closes (break before make, common practice for relay changeovers).
+    b = InProcessBoard(_short_config(), tmp_path)
+    b.boot()
+    assert req(b, 1, "INFO").fields["roles"] == "ladder,reverse,protect,open,short"
+    assert req(b, 2, "STATUS").fields["short"] == "0"
+    bad = req(b, 3, "SET", ("end", "A"), ("mask", 0), ("open", 1), ("short", 1))
+    assert bad.verb == "ERR" and bad.fields["code"] == "RANGE"
+    req(b, 4, "SET", ("end", "A"), ("mask", 0), ("open", 1))
+    start = len(b.events())
+    ok = req(b, 5, "SET", ("end", "A"), ("mask", 0), ("open", 0), ("short", 1)).fields
+    assert (ok["open"], ok["short"], ok["changed"]) == ("0", "1", "1")
+    ev = b.events()[start:]
+    open_off = _times(ev, "OPEN", False)
+    short_on = _times(ev, "SHORT", True)
+    assert len(open_off) == 1 and len(short_on) == 1
+    assert open_off[0] + 0.005 <= short_on[0]          # OPEN's settle time first
+    assert req(b, 6, "SET", ("end", "A"), ("mask", 3), ("open", 0)).fields["short"] == "0"
+    req(b, 7, "SET", ("end", "B"), ("mask", 0), ("open", 0), ("short", 1))
+    b2 = InProcessBoard(_short_config(), tmp_path)     # the shorted state survives a reboot
+    b2.boot()
+    assert req(b2, 1, "STATUS").fields["short"] == "1"
+
+
+def test_short_refused_without_a_short_relay(board):
+    reply = req(board, 1, "SET", ("end", "A"), ("mask", 0), ("open", 0), ("short", 1))
+    assert reply.verb == "ERR" and reply.fields["code"] == "RANGE"
+    assert "short" not in req(board, 2, "STATUS").fields

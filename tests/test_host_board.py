@@ -196,3 +196,24 @@ def test_info_warns_on_a_firmware_mismatch(monkeypatch, capsys):
     code, out, err = run_cli(capsys, "info", "--link", "loop://", "--json")
     assert code == 0 and "warning" in err
     assert json.loads(out)["firmware_warning"]
+
+
+def test_set_short_on_a_board_with_a_short_relay(tmp_path, capsys):
+    # PROTOCOL.md: SET short=1; the CLI's --short, flip keeps it, --mask ends it.
+    cfg = json.loads(Path(DEFAULT_BOARD_CONFIG).read_text())
+    cfg["relays"].append({"name": "SHORT", "role": "short", "pin": 12, "settle_ms": 5})
+    path = tmp_path / "board.json"
+    path.write_text(json.dumps(cfg))
+    url = f"loop://?board={path}"
+    code, out, _ = run_cli(capsys, "set", "--link", url, "--short", "--json")
+    assert code == 0 and json.loads(out)["short"] is True and json.loads(out)["open"] is False
+    code, out, _ = run_cli(capsys, "set", "--link", url, "--mask", "3", "--json")
+    assert json.loads(out)["short"] is False
+    with pytest.raises(SystemExit) as exc:                     # exclusive flags: usage error
+        run_cli(capsys, "set", "--link", url, "--short", "--open")
+    assert exc.value.code == 2
+
+
+def test_set_short_refused_without_a_short_relay(board, capsys):
+    code, _, err = run_cli(capsys, "set", "--link", board.url, "--short")
+    assert code == 2 and "--short" in err

@@ -15,7 +15,6 @@ JSON API.
 
 from __future__ import annotations
 
-import inspect
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -106,21 +105,10 @@ def outside_table_warning(table: list[tuple[int, float]], ohms: float,
     return None
 
 
-def send_state(ctl: Controller, fed_end: FedEnd, mask: int, open_: bool,
-               short: bool | None = None, name: KeyNamer = cli_name) -> BoardStatus:
-    """``ctl.set_state`` with the shorted state passed on only when asked for (and only
-    to a controller that knows it: older hosts refuse it here, sending nothing)."""
-    if short is None:
-        return ctl.set_state(fed_end, mask, open_)
-    check_short(ctl, name)
-    setter: Any = ctl.set_state
-    return setter(fed_end, mask, open_, short=short)  # type: ignore[no-any-return]
-
-
 def check_short(ctl: Controller, name: KeyNamer = cli_name) -> None:
-    """Refuse the shorted state on a host whose controller does not know it."""
-    if "short" not in inspect.signature(ctl.set_state).parameters:
-        raise ConfigError(name("short"), "this host cannot set the shorted state yet")
+    """Refuse the shorted state on a board without a relay of role ``short``."""
+    if "short" not in ctl.info().roles:
+        raise ConfigError(name("short"), "this board has no relay of role short")
 
 
 def apply_wish(ctl: Controller, wish: Wish, end_a_bearing_deg: float | None,
@@ -129,11 +117,11 @@ def apply_wish(ctl: Controller, wish: Wish, end_a_bearing_deg: float | None,
     if wish.is_empty():
         raise ConfigError("set", "say what to set: fed end or null bearing, and/or "
                                  "mask, ohms, open")
-    if sum(x is not None for x in (wish.mask, wish.ohms)) + wish.open > 1:
-        raise ConfigError(name("ohms"), "give one of mask, ohms or open")
+    if sum(x is not None for x in (wish.mask, wish.ohms)) + wish.open + bool(wish.short) > 1:
+        raise ConfigError(name("ohms"), "give one of mask, ohms, open or short")
     if wish.fed_end is not None and wish.null_bearing_deg is not None:
         raise ConfigError(name("null_bearing"), "give either a fed end or a null bearing")
-    if wish.short is not None:
+    if wish.short:
         check_short(ctl, name)
     if wish.mask is not None:
         info = ctl.info()  # cached after the first request: nothing sent for a bad mask
@@ -173,7 +161,12 @@ def apply_wish(ctl: Controller, wish: Wish, end_a_bearing_deg: float | None,
             extra["warnings"] = [outside]
     if wish.open:
         open_ = True
-    status = send_state(ctl, end or now.fed_end, mask, open_, wish.short, name)
+    # shorted stays shorted across a change of fed end; any new termination ends it
+    short = now.short and wish.mask is None and wish.ohms is None and not wish.open
+    if wish.short is not None:
+        short = wish.short
+        open_ = open_ and not short
+    status = ctl.set_state(end or now.fed_end, mask, open_, short)
     return Outcome(status, notes, extra)
 
 

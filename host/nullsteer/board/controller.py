@@ -37,10 +37,11 @@ class BoardState:
     mask: int
     open: bool
     ohms: float | None = None
+    short: bool = False
 
     def to_json(self) -> dict[str, object]:
         return {"fed_end": self.fed_end.value, "mask": self.mask, "open": self.open,
-                "ohms": self.ohms}
+                "short": self.short, "ohms": self.ohms}
 
 
 @dataclass(frozen=True)
@@ -96,7 +97,7 @@ def state_from_fields(fields: dict[str, str]) -> BoardState:
     try:
         ohms = wire.parse_decimal(fields["ohms"]) if "ohms" in fields else None
         return BoardState(FedEnd(fields["end"]), wire.parse_uint(fields["mask"]),
-                          fields["open"] == "1", ohms)
+                          fields["open"] == "1", ohms, fields.get("short") == "1")
     except (KeyError, ValueError) as exc:
         raise LinkError(f"board reply lacks a valid state field ({exc})") from None
 
@@ -268,14 +269,39 @@ class Controller:
             self._table = rows
         return self._table
 
-    def set_state(self, fed_end: FedEnd, mask: int, open_: bool) -> BoardStatus:
-        """Be in this state. The mask is checked against the board's bits before sending."""
+    def load_table(self, rows: list[tuple[int, float]]) -> None:
+        """Write a new ladder table to the board (TLOAD, chunks within the line limit).
+
+        ``rows`` are (mask, ohms) sorted by ohms. The board stages the chunks and puts
+        the table in use, saved atomically, only with the last one; signed like every
+        frame when the controller has a key."""
+        items = ["%d:%s" % (m, wire.format_ohms(r)) for m, r in rows]
+        k = 0
+        while k < len(items):
+            chunk: list[str] = []
+            while k < len(items) and len(",".join(chunk + [items[k]])) <= wire.MAX_VALUE:
+                chunk.append(items[k])
+                k += 1
+            self.request("TLOAD", (("start", k - len(chunk)), ("rows", len(items)),
+                                   ("t", ",".join(chunk))))
+        self._table = None
+        self._info = None
+
+    def set_state(self, fed_end: FedEnd, mask: int, open_: bool,
+                  short: bool = False) -> BoardStatus:
+        """Be in this state. The mask is checked against the board's bits before sending;
+        ``short`` (termination shorted) needs a board with a ``short`` relay and is sent
+        only when set (its absence means not shorted)."""
         info = self.info()
         if not 0 <= mask <= info.max_mask:
             raise ConfigError("--mask", f"{mask} is outside 0..{info.max_mask} "
                                         f"for this board's {info.bits} ladder relays")
-        f = self.request("SET", (("end", fed_end.value), ("mask", mask), ("open", open_)))
-        return self._after_set(f)
+        if short and "short" not in info.roles:
+            raise ConfigError("--short", "this board has no relay of role short")
+        fields: list[tuple[str, object]] = [("end", fed_end.value), ("mask", mask), ("open", open_)]
+        if short:
+            fields.append(("short", 1))
+        return self._after_set(self.request("SET", fields))
 
     def _after_set(self, fields: dict[str, str]) -> BoardStatus:
         # SET replies carry the state; fetch housekeeping with it for a full status.
@@ -289,7 +315,7 @@ class Controller:
     def flip(self) -> BoardStatus:
         """Swap fed and terminated ends, keeping the termination."""
         now = self.status().state
-        return self.set_state(now.fed_end.other, now.mask, now.open)
+        return self.set_state(now.fed_end.other, now.mask, now.open, now.short)
 
     def self_test(self, dwell_ms: int = 50) -> dict[str, str]:
         """Run the board's relay self-test (receiver protected throughout)."""

@@ -26,6 +26,7 @@ COMMAND_MODULES = (
     "nullsteer.cli.board",
     "nullsteer.cli.model",
     "nullsteer.cli.ladder",
+    "nullsteer.cli.calibrate",
     "nullsteer.cli.sun",
     "nullsteer.cli.schedule",
     "nullsteer.cli.service",

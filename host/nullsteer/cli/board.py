@@ -56,10 +56,10 @@ def describe(status: BoardStatus, end_a_deg: float | None = None,
              presets: list[str] | None = None) -> str:
     """One human line for a board state (with the presets it matches, when known)."""
     s = status.state
-    term = "open (no termination)" if s.open else (
+    term = "open (no termination)" if s.open else "shorted (closed loop: figure-8)" if s.short else (
         f"{s.ohms:.1f} ohm (mask {s.mask})" if s.ohms is not None else f"mask {s.mask}")
     text = f"fed end {s.fed_end.value}, termination {term}"
-    if end_a_deg is not None and not s.open:
+    if end_a_deg is not None and not (s.open or s.short):
         text += f", null toward {null_bearing_deg(s.fed_end.value, end_a_deg):.0f} deg"
     if presets is not None:
         text += f"; preset {' / '.join(presets)}" if presets else "; no preset"
@@ -270,6 +270,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--preset", metavar="NAME", help="a preset of the station file (needs --config)")
     p.add_argument("--freq", type=positive_float("--freq"), metavar="MHZ",
                    help="with --preset: the receive frequency choosing its band setting")
+    term.add_argument("--short", action="store_true",
+                      help="short the termination (closed loop, figure-8; needs a short relay)")
     add_json_flag(p)
     p.set_defaults(func=run_set)
 

@@ -39,8 +39,12 @@ def register(subparsers: Any) -> None:
     p.add_argument("--target-pct", type=float, help="worst-case error goal for --relays auto, %%")
     p.add_argument("--contact-ohm", type=float, help="closed contact resistance, ohms")
     p.add_argument("--open-pf", type=float, help="open-contact capacitance, pF")
+    p.add_argument("--time-budget", type=float, default=None, metavar="S",
+                   help="seconds the optimiser may search before it stops (not proven); "
+                        "default 2")
     p.add_argument("--node-budget", type=int, default=None,
-                   help="nodes the optimiser may visit before it stops (not proven)")
+                   help="nodes the optimiser may visit before it stops; alone, it replaces "
+                        "the clock (reproducible)")
     p.add_argument("--board-config", help="board config JSON to write the ladder table into")
     p.add_argument("--no-model", action="store_true", help="do not run the antenna model")
     add_json_flag(p)
@@ -78,12 +82,18 @@ def _merge(args: argparse.Namespace, spec: LadderSpec) -> LadderSpec:
         if par.contact_ohm < 0 or par.open_capacitance_f < 0:
             raise ConfigError("--contact-ohm/--open-pf", "must be >= 0")
     budget = spec.node_budget if args.node_budget is None else args.node_budget
-    if not budget >= 1:
+    if budget is not None and not budget >= 1:
         raise ConfigError("--node-budget", f"must be >= 1, got {budget}")
+    seconds = spec.time_budget_s if args.time_budget is None else args.time_budget
+    if args.node_budget is not None and args.time_budget is None:
+        seconds = None                      # a count alone: reproducible, no clock
+    if seconds is not None and not (math.isfinite(seconds) and 0 < seconds <= 3600):
+        raise ConfigError("--time-budget", f"must be 0 < S <= 3600 seconds, got {seconds:g}")
     return replace(
         spec, relays=relays, series=args.series or spec.series,
         tolerance_pct=args.tolerance if args.tolerance is not None else spec.tolerance_pct,
         topology=args.topology or spec.topology, parasitics=par, node_budget=budget,
+        time_budget_s=seconds,
         range_ohm=parse_range_flag(args.range) if args.range else spec.range_ohm,
         target_error_pct=args.target_pct if args.target_pct is not None else spec.target_error_pct)
 
@@ -119,10 +129,12 @@ def _human(design, out: dict) -> str:
     lines = [f"Ladder: {design.topology}, {design.relays} relays, {design.series} "
              f"±{design.tolerance_pct:g} %, wanted {format_ohm(design.r_min_ohm)} .. "
              f"{format_ohm(design.r_max_ohm)}"]
-    proof = "proven optimal" if design.proven_optimal else "best found within the node budget (not proven)"
+    proof = "proven optimal" if design.proven_optimal else "best found, not proven"
+    budget = "" if design.time_budget_s is None else f" of a {design.time_budget_s:g} s budget"
     lines.append(f"worst-case error {design.worst_case_error_pct:.2f} % (nominal "
-                 f"{design.nominal_error_pct:.2f} %), worst step {design.worst_step_pct:.2f} %, "
-                 f"{proof}; {design.search_nodes} nodes in {design.search_time_s:.2f} s")
+                 f"{design.nominal_error_pct:.2f} %), worst step {design.worst_step_pct:.2f} %")
+    lines.append(f"search: {proof}; {design.search_nodes} nodes in "
+                 f"{design.search_time_s:.2f} s{budget}")
     if "null_loss" in out:
         nl = out["null_loss"]
         lines.append(f"predicted null loss from quantisation: {nl['worst_db']:.2f} dB worst over "

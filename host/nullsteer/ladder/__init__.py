@@ -7,7 +7,9 @@ Public API (see each module):
 * :func:`nearest_setting`
 * :func:`parts_list`, :func:`settings_rows`, :func:`wiring_diagram`
 * :func:`board_ladder_block`, :func:`write_board_ladder`
-* :func:`exhaustive_best`, :func:`branch_and_bound` (the search itself)
+* :func:`exhaustive_best`, :func:`branch_and_bound` (the search itself; its seed in
+  ``localsearch``)
+* ``calibrate``: the parts fitted to meter readings, the table rebuilt
 * :func:`seen_termination_ohm`, :func:`suggest_transformer_ratio` (remote ladder)
 * :func:`predicted_null_loss` (with a solved antenna model)
 * :func:`parse_ladder` (the ``[ladder]`` station section)

@@ -7,11 +7,13 @@ range, of the error of the setting nearest (by ratio) to ``R``.
 
 With resistor tolerance ``t`` every setting of a resistor network lies within
 ``[s (1 - t), s (1 + t)]`` (series and parallel combinations are increasing and
-homogeneous of degree one in the resistor values), and the user picks the setting
-from its nominal value. The worst-case ratio ``rho`` then satisfies
-``ln rho = h + tau`` where ``tau = 0.5 ln((1 + t)/(1 - t))`` and ``h`` is the
-nominal log error over the range shifted by ``1/sqrt(1 - t**2)``: the tolerance shifts
-and widens the target but does not change which design is best.
+homogeneous of degree one in the resistor values). Were the setting picked nearest to
+``R`` times the shift ``1/sqrt(1 - t**2)``,
+the worst-case ratio ``rho`` would satisfy ``ln rho = h + tau`` with
+``tau = 0.5 ln((1 + t)/(1 - t))`` and ``h`` the nominal log error over the shifted range;
+the optimiser uses that shifted range as its target. The board, though, picks the
+setting nearest to ``R`` itself, and :func:`worst_case_error_pct` reports the worst
+case for that rule (a little larger).
 """
 
 from __future__ import annotations
@@ -30,8 +32,9 @@ def log_settings(settings_ohm: np.ndarray) -> np.ndarray:
     return np.sort(np.log(np.maximum(s, _TINY_OHM)), axis=-1)
 
 
-def worst_log_error_rows(x_sorted: np.ndarray, lo_log: float, hi_log: float) -> np.ndarray:
-    """Worst nominal log error for each row of sorted log settings.
+def gap_errors_rows(x_sorted: np.ndarray, lo_log: float, hi_log: float) -> np.ndarray:
+    """Per row, the worst log error inside each stretch of [lo_log, hi_log] between
+    neighbouring settings, and below the first and above the last setting.
 
     Parameters
     ----------
@@ -42,22 +45,25 @@ def worst_log_error_rows(x_sorted: np.ndarray, lo_log: float, hi_log: float) -> 
 
     Returns
     -------
-    ndarray, shape (N,)
-        ``max over ln R in [lo_log, hi_log] of min_m |x_m - ln R|``.
+    ndarray, shape (N, M + 1)
+        Column 0: below the first setting, 1 .. M-1: between settings m-1 and m, M: above
+        the last; 0 for a stretch outside the range. The row maximum is the worst error.
     """
     x = np.atleast_2d(x_sorted)
-    below = np.maximum(x[:, 0] - lo_log, 0.0)
-    above = np.maximum(hi_log - x[:, -1], 0.0)
-    worst = np.maximum(below, above)
-    if x.shape[1] > 1:
-        left, right = x[:, :-1], x[:, 1:]
-        p = np.maximum(left, lo_log)
-        q = np.minimum(right, hi_log)
-        c = np.clip(0.5 * (left + right), p, q)
-        tent = np.minimum(c - left, right - c)
-        tent = np.where(p <= q, tent, 0.0)
-        worst = np.maximum(worst, tent.max(axis=1))
-    return worst
+    below = np.maximum(x[:, :1] - lo_log, 0.0)
+    above = np.maximum(hi_log - x[:, -1:], 0.0)
+    left, right = x[:, :-1], x[:, 1:]
+    p = np.maximum(left, lo_log)
+    q = np.minimum(right, hi_log)
+    c = np.clip(0.5 * (left + right), p, q)
+    tent = np.where(p <= q, np.minimum(c - left, right - c), 0.0)
+    return np.concatenate((below, tent, above), axis=1)
+
+
+def worst_log_error_rows(x_sorted: np.ndarray, lo_log: float, hi_log: float) -> np.ndarray:
+    """Worst nominal log error for each row of sorted log settings: shape (N, M) ->
+    (N,), ``max over ln R in [lo_log, hi_log] of min_m |x_m - ln R|``."""
+    return gap_errors_rows(x_sorted, lo_log, hi_log).max(axis=1)
 
 
 def worst_log_error(settings_ohm: np.ndarray, lo_ohm: float, hi_ohm: float) -> float:
@@ -74,20 +80,41 @@ def tolerance_shift(tolerance_pct: float) -> tuple[float, float]:
 
 def worst_case_error_pct(settings_ohm: np.ndarray, lo_ohm: float, hi_ohm: float,
                          tolerance_pct: float) -> float:
-    """Worst-case ratio error over the range including resistor tolerance, percent."""
-    shift, tau = tolerance_shift(tolerance_pct)
-    h = worst_log_error(settings_ohm, lo_ohm * shift, hi_ohm * shift)
-    return (math.exp(h + tau) - 1.0) * 100.0
+    """Worst-case ratio error over the range including resistor tolerance, percent, for
+    the board's choice rule: the nominal setting nearest to the wanted R by ratio
+    (``protocol.wire.nearest_index``), built anywhere within ``[s (1 - t), s (1 + t)]``.
+
+    With x = ln R and z the chosen nominal log value, the worst ratio is
+    ``z - x + ln(1 + t)`` for x <= z and ``x - z - ln(1 - t)`` for x > z; over the
+    stretch [L, U] of the range where z is nearest (bounded by the log midpoints to its
+    neighbours, clipped to the range), each branch is largest at an end of the stretch.
+    """
+    t = tolerance_pct / 100.0
+    a, b = math.log1p(t), -math.log1p(-t)
+    z = log_settings(settings_ohm)
+    la, lb = math.log(lo_ohm), math.log(hi_ohm)
+    mids = 0.5 * (z[:-1] + z[1:])
+    lower = np.maximum(np.concatenate(([-np.inf], mids)), la)
+    upper = np.minimum(np.concatenate((mids, [np.inf])), lb)
+    used = lower <= upper
+    z, lower, upper = z[used], lower[used], upper[used]
+
+    def err(x: np.ndarray) -> np.ndarray:
+        return np.where(x <= z, z - x + a, x - z + b)
+
+    worst = float(np.maximum(err(lower), err(upper)).max())
+    return (math.exp(worst) - 1.0) * 100.0
 
 
 def worst_step_pct(settings_ohm: np.ndarray, lo_ohm: float, hi_ohm: float) -> float:
-    """Largest ratio step between neighbouring settings that bracket part of the range, percent."""
+    """Largest ratio step between neighbouring settings inside the range, percent: a
+    pair that straddles an end of the range counts only its part inside the range."""
     s = np.sort(np.asarray(settings_ohm, dtype=float))
     s = s[np.isfinite(s) & (s > 0)]
     if s.size < 2:
         return float("inf")
-    left, right = s[:-1], s[1:]
-    touches = (right >= lo_ohm) & (left <= hi_ohm)
+    left, right = np.maximum(s[:-1], lo_ohm), np.minimum(s[1:], hi_ohm)
+    touches = right >= left
     if not touches.any():
         return float("inf")
     return float(((right / left)[touches].max() - 1.0) * 100.0)

@@ -19,8 +19,8 @@ from nullsteer.ladder.coverage import (ratio_error_pct, tolerance_shift, worst_c
                                        worst_log_error, worst_step_pct)
 from nullsteer.ladder.eseries import get_series
 from nullsteer.ladder.network import Parasitics, network_impedance_ohm
-from nullsteer.ladder.optimise import (DEFAULT_NODE_BUDGET, Candidates, SearchResult,
-                                       branch_and_bound, default_candidates, scaled_binary_start)
+from nullsteer.ladder.optimise import (DEFAULT_TIME_BUDGET_S, Candidates, SearchResult,
+                                       branch_and_bound, default_candidates)
 from nullsteer.ladder.topology import LadderValues, Topology, get_topology
 
 MAX_RELAYS = 12
@@ -58,9 +58,12 @@ class LadderDesign:
     nominal_error_pct : float
         The same with exact resistor values.
     proven_optimal : bool
-        The search finished (False: stopped by its node budget; the best build found).
+        The search finished (False: stopped by its time or node budget; the best build
+        found).
     search_nodes : int
     search_time_s : float
+    time_budget_s : float or None
+        The search's time budget, seconds.
     """
 
     topology: str
@@ -77,6 +80,7 @@ class LadderDesign:
     proven_optimal: bool = True
     search_nodes: int = 0
     search_time_s: float = 0.0
+    time_budget_s: float | None = None
     extra: dict = field(default_factory=dict, compare=False)
 
     @property
@@ -107,7 +111,7 @@ class LadderDesign:
                 "worst_case_error_pct": self.worst_case_error_pct,
                 "nominal_error_pct": self.nominal_error_pct,
                 "proven_optimal": self.proven_optimal, "search_nodes": self.search_nodes,
-                "search_time_s": self.search_time_s}
+                "search_time_s": self.search_time_s, "time_budget_s": self.time_budget_s}
 
 
 def dc_settings(topology: Topology, values: LadderValues, parasitics: Parasitics,
@@ -153,25 +157,12 @@ _NAMES = {"range": "range_ohm", "relays": "relays", "tolerance": "tolerance_pct"
           "series": "series", "topology": "topology", "target": "target_error_pct"}
 
 
-def _search(topology: Topology, lo: float, hi: float, relays: int, cands: Candidates,
-            node_budget: int) -> SearchResult:
-    inc = scaled_binary_start(topology, lo, hi, relays, cands)
-    if topology.shunt_relays and relays > 1:
-        # the best chain one relay shorter, with the weakest shunt, is a valid start
-        plain = get_topology("series-shorting")
-        sub = branch_and_bound(plain, lo, hi, relays - 1, cands, node_budget=node_budget)
-        v = LadderValues(sub.values.base_ohm, sub.values.chain_ohm, (max(cands.shunt_ohm),))
-        h = worst_log_error(topology.ideal_settings_ohm(v), lo, hi)
-        if h < inc.log_error:
-            inc = SearchResult(v, h, 0)
-    return branch_and_bound(topology, lo, hi, relays, cands, inc, node_budget)
-
-
 def design_ladder(r_min_ohm: float, r_max_ohm: float, relays: int | None, series: str = "E24",
                   tolerance_pct: float | None = None, topology: str = "series-shorting", *,
                   parasitics: Parasitics | None = None, target_error_pct: float = 5.0,
                   candidates: Candidates | None = None,
-                  node_budget: int = DEFAULT_NODE_BUDGET, time_limit_s: float | None = None,
+                  node_budget: int | None = None,
+                  time_budget_s: float | None = DEFAULT_TIME_BUDGET_S,
                   names: dict[str, str] | None = None,
                   counts: list[int] | None = None) -> LadderDesign:
     """Design the ladder for a wanted termination range.
@@ -194,12 +185,12 @@ def design_ladder(r_min_ohm: float, r_max_ohm: float, relays: int | None, series
         Worst-case error goal for ``relays=None``, percent.
     candidates : Candidates, optional
         Values the search may use (default: the series over the range).
-    node_budget : int
-        Nodes one search may visit; a design from a stopped search has ``proven_optimal``
-        False. A budget rather than a clock keeps the design reproducible.
-    time_limit_s : float, optional
-        Not used any more (the node budget replaced the clock); accepted so that older
-        callers keep working.
+    node_budget : int, optional
+        Nodes one search may visit (None: no count limit; a count keeps a design
+        reproducible).
+    time_budget_s : float, optional
+        Seconds one search may take (default 2; None: no clock). A design from a
+        stopped search has ``proven_optimal`` False.
     names : dict, optional
         Key names for error messages (``range``, ``relays``, ``tolerance``, ``series``,
         ``topology``, ``target``), e.g. the CLI's flags.
@@ -226,9 +217,10 @@ def design_ladder(r_min_ohm: float, r_max_ohm: float, relays: int | None, series
     for n in counts:
         cands = candidates or default_candidates(es, lo, hi, n)
         t0 = time.perf_counter()
-        result = _search(topo, lo, hi, n, cands, node_budget)
-        design = evaluate(topo, result.values, r_min_ohm, r_max_ohm, tol, par, es.name,
-                          result, time.perf_counter() - t0)
+        result = branch_and_bound(topo, lo, hi, n, cands, node_budget=node_budget,
+                                  time_budget_s=time_budget_s)
+        design = replace(evaluate(topo, result.values, r_min_ohm, r_max_ohm, tol, par, es.name,
+                                  result, time.perf_counter() - t0), time_budget_s=time_budget_s)
         if relays is not None or design.worst_case_error_pct <= target_error_pct:
             return design
     assert design is not None

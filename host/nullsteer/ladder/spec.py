@@ -13,8 +13,11 @@ Keys (all optional except where the CLI gives no default):
 ``contact_ohm``          closed relay contact resistance, ohms (default 0.1)
 ``open_capacitance_pf``  capacitance across an open contact, pF (default 1.0)
 ``induced_w``            RF power assumed to reach the termination, W (default 0.25)
-``search_node_budget``   nodes one optimiser search may visit before it stops with the
-                         best build so far, marked not proven (default 5000)
+``search_time_budget_s`` seconds one optimiser search may take before it stops with
+                         the best build so far, marked not proven (default 2)
+``search_node_budget``   nodes one search may visit (default: no count limit); given
+                         without ``search_time_budget_s`` it replaces the clock, so the
+                         design is the same on any machine
 ``null_depth_ceiling_db`` deepest null counted in the predicted null loss, dB (default
                          30; see :mod:`nullsteer.ladder.nullloss`)
 
@@ -33,12 +36,12 @@ from nullsteer.station.config import check_unknown, get_float, get_int, get_str
 from nullsteer.errors import ConfigError
 from nullsteer.ladder.network import Parasitics
 from nullsteer.ladder.nullloss import DEFAULT_CEILING_DB
-from nullsteer.ladder.optimise import DEFAULT_NODE_BUDGET
+from nullsteer.ladder.optimise import DEFAULT_TIME_BUDGET_S
 from nullsteer.ladder.remote import RemoteSpec
 
 _KEYS = {"series", "tolerance_pct", "relays", "topology", "range_ohm", "target_error_pct",
          "null_loss_goal_db", "contact_ohm", "open_capacitance_pf", "induced_w",
-         "search_node_budget", "null_depth_ceiling_db", "remote"}
+         "search_node_budget", "search_time_budget_s", "null_depth_ceiling_db", "remote"}
 _REMOTE = {"transformer_ratio", "coax_z0_ohm", "coax_velocity_factor",
            "coax_loss_db_per_100m_at_10mhz", "coax_length_m"}
 
@@ -56,7 +59,8 @@ class LadderSpec:
     null_loss_goal_db: float = 3.0
     parasitics: Parasitics = Parasitics()
     induced_w: float = 0.25
-    node_budget: int = DEFAULT_NODE_BUDGET
+    node_budget: int | None = None
+    time_budget_s: float | None = DEFAULT_TIME_BUDGET_S
     null_depth_ceiling_db: float = DEFAULT_CEILING_DB
     remote: RemoteSpec | None = None
 
@@ -118,8 +122,12 @@ def parse_ladder(table: dict[str, Any], where: str = "ladder") -> LadderSpec:
             get_float(table, "open_capacitance_pf", where, default=1.0, minimum=0.0,
                       maximum=1000.0) * 1e-12),
         induced_w=get_float(table, "induced_w", where, default=0.25, minimum=0.0),
-        node_budget=get_int(table, "search_node_budget", where, default=DEFAULT_NODE_BUDGET,
-                            minimum=1),
+        node_budget=None if "search_node_budget" not in table else get_int(
+            table, "search_node_budget", where, minimum=1),
+        time_budget_s=None if ("search_node_budget" in table
+                               and "search_time_budget_s" not in table) else get_float(
+            table, "search_time_budget_s", where, default=DEFAULT_TIME_BUDGET_S, minimum=0.0,
+            exclusive_min=True, maximum=3600.0),
         null_depth_ceiling_db=get_float(table, "null_depth_ceiling_db", where,
                                         default=DEFAULT_CEILING_DB, minimum=0.0,
                                         exclusive_min=True),

@@ -160,7 +160,8 @@ def design_for_station(station: Any, solution: Any = None, needed: Any = None, *
     def build(relays: int | None) -> LadderDesign:
         return design_ladder(lo, hi, relays, spec.series, spec.tolerance_pct, spec.topology,
                              parasitics=spec.parasitics, target_error_pct=target,
-                             node_budget=spec.node_budget, names=names)
+                             node_budget=spec.node_budget,
+                             time_budget_s=spec.time_budget_s, names=names)
 
     def loss(d: LadderDesign) -> NullLoss:
         return predicted_null_loss(d, solution, elevations, remote=spec.remote,

@@ -58,9 +58,10 @@ REQUEST_KEYS = {
     "PING": (),
     "INFO": (),
     "STATUS": (),
-    "SET": ("end", "mask", "open", "ohms"),
+    "SET": ("end", "mask", "open", "ohms", "short"),
     "TEST": ("dwell_ms",),
     "TABLE": ("start", "count"),
+    "TLOAD": ("start", "rows", "t"),
 }
 AUTH_KEYS = ("ctr", "sig")
 REPLY_VERBS = ("OK", "ERR", "EVT")
