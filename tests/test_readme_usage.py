@@ -6,12 +6,16 @@ README says; ``./level.sh`` is a script that prints a level in dB, as the auto-n
 line expects. The receivers the lines name are there too: the real ``rigctld`` (dummy
 rig), an rtl_tcp stand-in and a recorded ``recording.wav``; their addresses in the lines
 (``127.0.0.1:4532``, ``127.0.0.1:1234``) are replaced by the ports the test's servers got.
+The ``--short`` line needs a board with a relay of role short: its ``URL`` is a second
+simulated board, the demo board plus that relay. ``calibrate`` reads ``parts.csv`` and
+``readings.csv`` as the bench test writes them (here: the demo ladder's nominal values).
 Lines that need hardware on this machine are named in :data:`HARDWARE_ONLY` and skipped;
 long-running commands are started and stopped once they say they are up.
 """
 
 from __future__ import annotations
 
+import json
 import os
 import re
 import shlex
@@ -60,6 +64,12 @@ def workdir(tmp_path_factory):
     """A user's folder: a copy of examples/ and a level script."""
     work = tmp_path_factory.mktemp("readme")
     shutil.copytree(ROOT / "examples", work / "examples")
+    ladder = json.loads((ROOT / "examples" / "board-sim.json").read_text())["ladder"]
+    parts = [("R0", ladder["base_ohm"])] + [(f"R{i + 1}", r)
+                                            for i, r in enumerate(ladder["resistors_ohm"])]
+    (work / "parts.csv").write_text("ref,ohms\n" + "".join(f"{r},{v}\n" for r, v in parts))
+    (work / "readings.csv").write_text("mask,ohms\n" + "".join(
+        f"{m},{r}\n" for m, r in ladder["table"]))
     script = work / "level.sh"
     script.write_text("#!/bin/sh\necho -42.5\n")
     script.chmod(0o755)
@@ -88,10 +98,31 @@ def receivers(workdir):
         rig.stop()
 
 
+def _start_sim(workdir, *extra):
+    return subprocess.Popen([sys.executable, "-m", "nullsteer", "sim", *extra], cwd=workdir,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+
+
+@pytest.fixture(scope="module")
+def short_url(workdir):
+    """A simulated board with a relay of role short (the demo board plus pin 12)."""
+    config = json.loads((ROOT / "examples" / "board-sim.json").read_text())
+    config["relays"].append({"name": "SHORT", "role": "short", "pin": 12, "settle_ms": 5})
+    board = workdir / "board-short.json"
+    board.write_text(json.dumps(config))
+    proc = _start_sim(workdir, "--board", str(board))
+    try:
+        first = proc.stdout.readline()
+        assert first.startswith(LONG_RUNNING["sim"]), first + proc.stderr.read()
+        yield first[len(LONG_RUNNING["sim"]):].strip()
+    finally:
+        proc.terminate()
+        proc.wait(timeout=30)
+
+
 @pytest.fixture(scope="module")
 def sim_url(workdir):
-    proc = subprocess.Popen([sys.executable, "-m", "nullsteer", "sim"], cwd=workdir,
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    proc = _start_sim(workdir)
     try:
         first = proc.stdout.readline()  # blocks until the board is up (event, not a sleep)
         assert first.startswith(LONG_RUNNING["sim"]), first + proc.stderr.read()
@@ -107,7 +138,7 @@ def test_the_usage_block_is_found():
 
 
 @pytest.mark.slow
-def test_every_usage_line_runs(workdir, sim_url, receivers):
+def test_every_usage_line_runs(workdir, sim_url, short_url, receivers):
     env = {**os.environ, "MPLBACKEND": "Agg"}
     env.pop("NULLSTEER_LINK", None)
     ran = []
@@ -127,7 +158,8 @@ def test_every_usage_line_runs(workdir, sim_url, receivers):
                 proc.wait(timeout=30)
             ran.append((line, first))
             continue
-        proc = subprocess.run(_argv(line, sim_url, receivers), cwd=workdir, env=env, capture_output=True,
+        url = short_url if "--short" in line.split() else sim_url
+        proc = subprocess.run(_argv(line, url, receivers), cwd=workdir, env=env, capture_output=True,
                               text=True, timeout=300, stdin=subprocess.DEVNULL)
         assert proc.returncode == 0, f"{line}\nexit {proc.returncode}\n{proc.stderr[-2000:]}"
         assert "Traceback" not in proc.stderr, line
