@@ -262,11 +262,14 @@ class BoardMqtt:
         Unix time in seconds, for the replay window.
     net_up : callable or None
         Brings the network up before each connection attempt (Wi-Fi, see net.py).
+    idle : callable or None
+        Run while a connection attempt waits for the broker (feeds the watchdog).
     """
 
     def __init__(self, app: "Any", m: dict, make_client: "Any", clock: "Any",
-                 now_s: "Any" = None, net_up: "Any" = None) -> None:
+                 now_s: "Any" = None, net_up: "Any" = None, idle: "Any" = None) -> None:
         self.net_up = net_up
+        self.idle = idle
         self.app = app
         self.m = m
         self.make_client = make_client
@@ -295,6 +298,7 @@ class BoardMqtt:
         c = self.make_client(self.m)
         c.set_will(self.t + "avail", b"offline", True, 1)
         c.on_message = self.on_message
+        c.idle = self.idle
         c.connect(True)
         self.client = c
         subs = [(self.t + "req", 1)]
@@ -566,7 +570,8 @@ def serve(app: "Any", m: dict, idle: "Any", clock: "Any", port: "Any" = None) ->
     Wi-Fi is joined before each connection attempt where the board has it (net.py);
     ``idle()`` runs after each pass (feeds the watchdog)."""
     import net
-    link = BoardMqtt(app, m, make_client, clock, net_up=net.joiner(m["wifi"], clock, idle))
+    link = BoardMqtt(app, m, make_client, clock, net_up=net.joiner(m["wifi"], clock, idle),
+                     idle=idle)
     asm = LineAssembler()
     while True:
         if port is not None:
