@@ -106,10 +106,16 @@ def test_normal_running_feeds_the_watchdog(tmp_path):
         with Controller(open_link(board.url), timeout_s=3.0) as c:
             for mask in (5, 90, 0, 127, 33):
                 c.set_state(FedEnd.B if mask % 2 else FedEnd.A, mask, False)
-            for _ in range(10):
-                c.status()
-    # every pass of the serial loop (100 ms) feeds: a second of running gives several
-    check_gaps(board, min_feeds=5)
+            # idle on the board's own clock for longer than the timeout (its status
+            # reports uptime in seconds), then one more change: the relay settle feeds,
+            # so a serial loop that forgot to feed shows as one long gap before it
+            start = c.status().uptime_s
+            pace = threading.Event()          # never set: a paced poll of the board
+            while c.status().uptime_s < start + 3:
+                pace.wait(0.2)
+            c.set_state(FedEnd.A, 1, False)
+    # every pass of the serial loop (100 ms) feeds: three idle seconds give dozens
+    check_gaps(board, min_feeds=20)
 
 
 def test_long_relay_sequence_keeps_feeding(tmp_path):

@@ -16,7 +16,6 @@ from __future__ import annotations
 import json
 import math
 import re
-import time
 
 from mqtt_support import MqttSimBoard, Watcher, board_config
 
@@ -33,21 +32,23 @@ class HubStandIn:
         self.w = Watcher(broker.host, broker.port, [PREFIX + "/#", "nullsteer/#"])
 
     def entities(self, want: int, timeout_s: float = 5.0) -> dict[str, dict]:
-        deadline = time.monotonic() + timeout_s
-        while time.monotonic() < deadline:
+        def configs(latest: dict) -> dict[str, dict]:
             found = {}
-            for topic, payload in list(self.w.latest.items()):
+            for topic, payload in list(latest.items()):
                 m = CONFIG_TOPIC.match(topic)
                 if m and payload:
-                    cfg = json.loads(payload)
-                    for key in ("command_topic", "state_topic", "unique_id", "device",
-                                "availability_topic") + REQUIRED[m.group(1)]:
-                        assert key in cfg, (topic, key)
-                    found[m.group(1) + ":" + m.group(3)] = cfg
-            if len(found) >= want:
-                return found
-            time.sleep(0.05)
-        raise AssertionError(f"only {len(found)} configs arrived")
+                    found[m.group(1) + ":" + m.group(3)] = (topic, json.loads(payload))
+            return found
+
+        self.w.wait_until(lambda latest: len(configs(latest)) >= want, timeout_s)
+        found = configs(dict(self.w.latest))
+        if len(found) < want:
+            raise AssertionError(f"only {len(found)} configs arrived")
+        for name, (topic, cfg) in found.items():
+            for key in ("command_topic", "state_topic", "unique_id", "device",
+                        "availability_topic") + REQUIRED[name.split(":")[0]]:
+                assert key in cfg, (topic, key)
+        return {name: cfg for name, (_, cfg) in found.items()}
 
     def command(self, cfg: dict, payload: str) -> None:
         self.w.publish(cfg["command_topic"], payload)
@@ -114,15 +115,21 @@ def test_hub_stand_in_drives_the_board(make_broker):
 
             # a value the ladder cannot reach is refused and moves nothing
             before = board.state()
+            log = "nullsteer/flag-ne/log"
+            hub.w.latest.pop(log, None)
             hub.command(num, "50000")
-            time.sleep(0.5)
+            # the board says so on its log topic once it has handled the command
+            assert hub.w.wait_for(log, timeout_s=3.0) is not None
+            assert b"refused" in hub.w.latest[log]
             assert board.state() == before
 
             # hub restart: configs deleted, then the hub's birth message
-            for topic in [t for t in hub.w.latest if CONFIG_TOPIC.match(t)]:
+            configs = [t for t in hub.w.latest if CONFIG_TOPIC.match(t)]
+            for topic in configs:
                 hub.w.publish(topic, b"", retain=True)
-            time.sleep(0.3)
-            for topic in [t for t in hub.w.latest if CONFIG_TOPIC.match(t)]:
+            # the deletions came back to the hub's own subscription: the broker has them
+            assert hub.w.wait_until(lambda latest: all(latest.get(t) == b"" for t in configs), 3.0)
+            for topic in configs:
                 hub.w.latest.pop(topic)
             hub.w.publish(PREFIX + "/status", b"online")
             assert len(hub.entities(4)) == 4
