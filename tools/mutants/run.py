@@ -18,7 +18,7 @@ survivor. The unmutated copy must pass the listed tests first, or the run stops.
 Usage::
 
     python tools/mutants/run.py [--only ID ...] [--list FILE] [--timeout S]
-                                [--no-confirm] [--min-score PCT]
+                                [--no-confirm] [--min-score PCT] [--rev REV]
 
 Exit status: 0 when the score (caught / applicable, survivors with an ``accept`` reason
 counted as not caught) reaches ``--min-score`` (default 90), 1 when it does not, 2 for
@@ -85,7 +85,13 @@ def project_files(repo: Path) -> list[str]:
     return [p for p in done.stdout.decode().split("\0") if p and (repo / p).is_file()]
 
 
-def copy_tree(repo: Path, dest: Path) -> None:
+def copy_tree(repo: Path, dest: Path, rev: str | None = None) -> None:
+    """The working state of ``repo`` (or the tree of git revision ``rev``) into ``dest``."""
+    if rev is not None:
+        archive = subprocess.run(["git", "archive", "--format=tar", rev], cwd=repo,
+                                 capture_output=True, check=True).stdout
+        subprocess.run(["tar", "-x", "-C", str(dest)], input=archive, check=True)
+        return
     for rel in project_files(repo):
         target = dest / rel
         target.parent.mkdir(parents=True, exist_ok=True)
@@ -166,6 +172,8 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--no-confirm", action="store_true",
                     help="do not rerun survivors against the whole suite")
     ap.add_argument("--min-score", type=float, default=90.0, help="required score, percent")
+    ap.add_argument("--rev", help="mutate the tree of this git revision instead of the "
+                                  "working tree (a before/after score)")
     args = ap.parse_args(argv)
     mutants = load_mutants(args.list)
     if args.only:
@@ -179,7 +187,7 @@ def main(argv: list[str] | None = None) -> int:
     work = Path(tempfile.mkdtemp(prefix="nullsteer-mutants-"))
     started = time.monotonic()
     try:
-        copy_tree(REPO, work)
+        copy_tree(REPO, work, args.rev)
         check_copy(work)
         baseline = sorted({t for m in mutants for t in m.tests if (work / t).exists()})
         print(f"baseline: {len(baseline)} test files on the unmutated copy ...", flush=True)
