@@ -71,6 +71,15 @@ def test_mismatch_loss_of_the_worked_case():
     assert float(mismatch_loss_db(50.0, 25.0)) == pytest.approx(-10 * math.log10(8 / 9), rel=1e-12)
 
 
+@pytest.mark.parametrize("zs, zl", [(50 + 25j, 50.0), (30 + 40j, 120 - 10j), (300 - 200j, 75.0)])
+def test_mismatch_loss_with_a_complex_source(zs, zl):
+    # Power delivered over power available (Pozar §2.6, §12.1): 4·Rs·RL / |Zs + ZL|²,
+    # by hand; a conjugate match (ZL = Zs*) delivers all of it.
+    want = 4 * zs.real * complex(zl).real / abs(zs + zl) ** 2
+    assert float(mismatch_loss_db(zs, zl)) == pytest.approx(-10 * math.log10(want), rel=1e-12)
+    assert float(mismatch_loss_db(zs, np.conj(zs))) == pytest.approx(0.0, abs=1e-12)
+
+
 @pytest.mark.parametrize("loss_db_per_100m, length_m, f_hz", [
     (2.0, 30.0, 3.6e6), (5.0, 80.0, 14.0e6), (0.8, 150.0, 1.83e6)])
 def test_matched_coax_passes_its_db_per_length(loss_db_per_100m, length_m, f_hz):
