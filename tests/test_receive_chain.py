@@ -5,8 +5,7 @@ Sources:
 * Pozar, *Microwave Engineering*, 4th ed., §2.7 (attenuation in dB and nepers: a matched
   line of loss L dB passes 10^(−L/10) of the power; 1 Np = 20·log10(e) dB ≈ 8.686 dB),
   §2.3 (λ/4 transformer Zin = Z0²/ZL), §12.1 (two-port power gains: the transducer gain
-  G_T = P_L/P_avs; its S-parameter form, eq. 12.13 in our copy, equation number from
-  memory).
+  G_T = P_L/P_avs and its S-parameter form; section and equation numbers from memory).
 * scikit-rf (test-only), an independent transmission-line implementation; the
   propagation constant handed to it is built here from the dB-per-length definition,
   never from the project's ``Coax.gamma``.
