@@ -7,7 +7,7 @@ STUBS  := .stubs
 STUBS_STAMP := $(STUBS)/.installed-stamp
 DEMO_OUT ?= out/demo
 
-.PHONY: all venv broker browser hamlib stubs typecheck test demo bench attack clean
+.PHONY: all venv broker browser hamlib stubs typecheck test demo bench attack mutants clean
 
 all: test
 
@@ -19,7 +19,9 @@ $(STAMP): pyproject.toml
 
 venv: $(STAMP)
 
-# The test fixture starts its own mosquitto on a free loopback port; it only has to be installed.
+# The test fixture starts its own mosquitto on a free loopback port; it only has to be
+# installed. The TLS tests make throw-away certificates with the openssl command line.
+# Under CI (CI=true) a missing one fails the tests instead of skipping them.
 broker:
 	@if command -v mosquitto >/dev/null 2>&1 || [ -x /usr/sbin/mosquitto ]; then :; \
 	elif [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then \
@@ -27,6 +29,13 @@ broker:
 	  apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq mosquitto >/dev/null; \
 	else \
 	  echo "mosquitto is not installed: install it (e.g. 'sudo apt-get install mosquitto') and rerun"; exit 1; \
+	fi
+	@if command -v openssl >/dev/null 2>&1; then :; \
+	elif [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then \
+	  echo "installing openssl (apt-get)"; \
+	  apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq openssl >/dev/null; \
+	else \
+	  echo "openssl is not installed: install it (e.g. 'sudo apt-get install openssl') and rerun"; exit 1; \
 	fi
 
 # The control page's browser test drives Debian's headless Chromium through its chromedriver
@@ -75,6 +84,11 @@ demo: venv
 # firmware and a real broker (127.0.0.1 only); prints its figures. A smoke part runs in test.
 attack: venv broker
 	$(BIN)/python tests/attack_suite.py --seed $${SEED:-1}
+
+# Mutation run (not part of `make test`): curated mutants applied to a copy of the tree,
+# the score and every survivor printed; see tools/mutants/run.py. MUTANTS_ARGS="--only ID".
+mutants: venv broker
+	$(BIN)/python tools/mutants/run.py $(MUTANTS_ARGS)
 
 bench: venv
 	@for b in benchmarks/bench_*.py; do echo "== $$b"; $(BIN)/python $$b || exit 1; done

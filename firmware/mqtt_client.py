@@ -223,6 +223,9 @@ class MQTTClient:
         Name checked against the broker certificate (default ``host``).
     connect_timeout_s : float
         Bound on the TCP/TLS set-up and on the wait for CONNACK, seconds.
+
+    ``idle`` (attribute, default None): called between the 100 ms slices of the wait for
+    CONNACK, so a board feeds its watchdog while a hung broker keeps it waiting.
     """
 
     def __init__(self, client_id: str, host: str, port: int = 1883,
@@ -253,6 +256,7 @@ class MQTTClient:
         self.connected = False
         self.dropped = 0  # oversize or malformed messages thrown away
         self.skip = None  # type: Any  # the oversize packet being discarded (see _discard)
+        self.idle = None  # type: Any
 
     # --- set-up ----------------------------------------------------------------------
     def set_will(self, topic: str, payload: bytes, retain: bool = False, qos: int = 0) -> None:
@@ -288,6 +292,8 @@ class MQTTClient:
                 if left <= 0:
                     raise OSError("no CONNACK within %s s" % self.connect_timeout_s)
                 self._fill(min(left, 100))
+                if self.idle is not None:
+                    self.idle()
             kind, body = pkt
             if kind & 0xF0 != CONNACK or len(body) != 2:
                 raise OSError("expected CONNACK")

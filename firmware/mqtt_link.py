@@ -314,11 +314,14 @@ class BoardMqtt:
     counter : CounterStore or None
         The replay guard's counter file (default: ``ns_ctr.txt`` beside the state file,
         through the app's file access).
+    idle : callable or None
+        Run while a connection attempt waits for the broker (feeds the watchdog).
     """
 
     def __init__(self, app: "Any", m: dict, make_client: "Any", clock: "Any",
-                 net_up: "Any" = None, counter: "Any" = None) -> None:
+                 net_up: "Any" = None, counter: "Any" = None, idle: "Any" = None) -> None:
         self.net_up = net_up
+        self.idle = idle
         self.app = app
         self.m = m
         self.make_client = make_client
@@ -357,6 +360,7 @@ class BoardMqtt:
         c = self.make_client(self.m)
         c.set_will(self.t + "avail", b"offline", True, 1)
         c.on_message = self.on_message
+        c.idle = self.idle
         c.connect(True)
         self.client = c
         subs = [(self.t + "req", 1)]
@@ -689,7 +693,8 @@ def serve(app: "Any", m: dict, idle: "Any", clock: "Any", port: "Any" = None) ->
     Wi-Fi is joined before each connection attempt where the board has it (net.py);
     ``idle()`` runs after each pass (feeds the watchdog)."""
     import net
-    link = BoardMqtt(app, m, make_client, clock, net_up=net.joiner(m["wifi"], clock, idle))
+    link = BoardMqtt(app, m, make_client, clock, net_up=net.joiner(m["wifi"], clock, idle),
+                     idle=idle)
     asm = LineAssembler()
     while True:
         if port is not None:

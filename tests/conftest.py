@@ -16,6 +16,11 @@ Fixtures (usable by every test module):
     A factory for more throw-away CAs (``throwaway_ca("other")`` -> :class:`ThrowawayCA`),
     e.g. a CA the broker's certificate does not come from.
 
+Under CI (``CI=true``, as ``.ci/run`` sets it) nothing may be skipped: a missing broker,
+command-line tool or test-only library fails the test (hooks at the end of this file),
+because a skip there would turn a broken set-up into a green run. Elsewhere a missing
+tool still skips, with the reason.
+
 Broker configuration notes (mosquitto 2.0, checked on Debian 2.0.11):
 
 * a ``listener`` turns anonymous access off unless ``allow_anonymous true``;
@@ -45,6 +50,11 @@ import pytest
 
 MOSQUITTO_CANDIDATES = ("/usr/sbin/mosquitto", "/usr/bin/mosquitto")
 _counter = itertools.count(1)
+
+
+def under_ci() -> bool:
+    """True when running under CI (``CI=true``): skips become failures."""
+    return os.environ.get("CI", "").strip().lower() in ("1", "true", "yes")
 
 
 def unique(prefix: str) -> str:
@@ -305,3 +315,27 @@ def _host_counter_dir(tmp_path_factory: pytest.TempPathFactory, monkeypatch: pyt
     """Signing hosts keep their frame counters in a folder of the test run, never in the
     user's own state folder."""
     monkeypatch.setenv("NULLSTEER_STATE_DIR", str(tmp_path_factory.mktemp("host-state")))
+
+
+# -- under CI a skip is a failure ------------------------------------------------------
+_CI_NOTE = "CI=true: a missing broker, tool or test library is a failure, not a skip"
+
+
+@pytest.hookimpl(hookwrapper=True)
+def pytest_runtest_makereport(item: pytest.Item, call: pytest.CallInfo):
+    outcome = yield
+    report = outcome.get_result()
+    if under_ci() and report.skipped and not hasattr(report, "wasxfail"):
+        reason = report.longrepr[2] if isinstance(report.longrepr, tuple) else report.longrepr
+        report.outcome = "failed"
+        report.longrepr = f"{_CI_NOTE}: {reason}"
+
+
+@pytest.hookimpl(hookwrapper=True)
+def pytest_make_collect_report(collector: pytest.Collector):
+    outcome = yield
+    report = outcome.get_result()
+    if under_ci() and report.skipped:   # e.g. a module-level importorskip
+        reason = report.longrepr[2] if isinstance(report.longrepr, tuple) else report.longrepr
+        report.outcome = "failed"
+        report.longrepr = f"{_CI_NOTE}: {reason}"

@@ -116,8 +116,15 @@ class Watcher:
                     return None
                 self._cv.wait(left)
 
-    def publish(self, topic: str, payload: bytes | str, retain: bool = False) -> None:
-        self.client.publish(topic, payload, qos=1, retain=retain)
+    def wait_until(self, predicate: Any, timeout_s: float = 5.0) -> bool:
+        """Wait (on message arrival, no polling) until ``predicate(latest)`` is true."""
+        with self._cv:
+            return self._cv.wait_for(lambda: predicate(self.latest), timeout_s)
+
+    def publish(self, topic: str, payload: bytes | str, retain: bool = False) -> Any:
+        """Publish with QoS 1; returns paho's MQTTMessageInfo (``wait_for_publish`` waits
+        for the broker's PUBACK, MQTT 3.1.1 §4.3.2)."""
+        return self.client.publish(topic, payload, qos=1, retain=retain)
 
     def close(self) -> None:
         self.client.disconnect()

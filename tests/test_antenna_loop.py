@@ -91,8 +91,12 @@ def test_open_termination_is_figure_eight():
 
 @pytest.mark.parametrize("position", ["bottom", "middle"])
 def test_qst_flag_optimum(position):
-    # QST July 2000 example flag over average ground (ARRL table: εr 13, σ 0.005 S/m),
-    # 1.83 MHz, low-angle signals (20°): ≈ 950 Ω, held to ±25 % (REFERENCES.md).
+    # Plausibility only, not an accuracy check: QST July 2000 example flag (value from
+    # memory, not checked here; the article's ground is not known to us) over average
+    # ground (ARRL table: εr 13, σ 0.005 S/m), 1.83 MHz, low-angle signals (20°):
+    # ≈ 950 Ω. ±25 % because a from-memory figure for an unknown ground cannot carry a
+    # tighter band (REFERENCES.md); the model's optimum is checked exactly against a
+    # brute-force scan in test_optimum_is_the_maximum.
     sol = flag("real", port_position=position).solve([1.83e6])
     r = sol.optimum_termination_ohm("A", 20.0)[0]
     assert 0.75 * 950 <= r <= 1.25 * 950
@@ -180,13 +184,27 @@ def test_average_gain_conserves_power_over_perfect_ground(termination):
     assert np.allclose(avg, 1.0 - burned, rtol=2e-3, atol=2e-4)
 
 
-def test_rdf_is_peak_over_average_gain():
-    # NCVEC E9H03 (RDF = peak gain compared with average gain over the hemisphere).
+def test_rdf_against_an_independent_integration_of_the_pattern():
+    # NCVEC E9H03: RDF = peak gain compared with the average gain over the hemisphere
+    # (normalisation: ∫upper G dΩ / 4π, documented in PortSolution.average_gain). The
+    # average is integrated here by the midpoint rule on a 1° × 1° grid with the cos(el)
+    # solid-angle weight (Σ w = 2π checked), independent of the model's Gauss-Legendre
+    # Gram matrix; the peak is searched over the whole upper hemisphere, not only the
+    # axis. Tolerance 0.02 dB: the midpoint rule's error at 1° steps on a smooth pattern.
     sol = flag("real").solve([1.83e6])
-    el = np.arange(1.0, 91.0)
-    peak = np.max(sol.gain(950.0, "A", np.full(el.shape, 65.0), el))
-    assert sol.rdf_db(950.0, "A")[0] == pytest.approx(
-        10 * np.log10(peak / sol.average_gain(950.0, "A")[0]), abs=1e-9)
+    az = np.arange(0.5, 360.0, 1.0)
+    el = np.arange(0.5, 90.0, 1.0)
+    azg, elg = np.meshgrid(az, el)
+    w = np.cos(np.radians(elg)) * np.radians(1.0) ** 2
+    assert np.sum(w) == pytest.approx(2 * np.pi, rel=1e-4)
+    for r in (950.0, 400.0, np.inf):
+        g = sol.gain(r, "A", azg, elg)[0]
+        avg = np.sum(g * w) / (4 * np.pi)
+        assert 10 * np.log10(avg) == pytest.approx(
+            10 * np.log10(sol.average_gain(r, "A")[0]), abs=0.02)
+        if np.isfinite(r):   # a terminated flag peaks along its axis, toward the fed end
+            assert sol.rdf_db(r, "A")[0] == pytest.approx(
+                10 * np.log10(g.max() / avg), abs=0.05)
 
 
 def test_shorted_termination_is_a_small_loop_with_broadside_nulls():

@@ -6,6 +6,8 @@ import math
 import numpy as np
 import pytest
 
+from ladder_reference import brute_force_pct
+
 from nullsteer.ladder import (Candidates, TOPOLOGIES, binary_weighted, branch_and_bound,
                               exhaustive_best)
 from nullsteer.ladder.coverage import worst_case_error_pct, worst_log_error

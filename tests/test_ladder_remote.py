@@ -25,14 +25,19 @@ def test_quarter_wave_inverts_exactly():
 
 
 def test_seen_termination_matches_scikit_rf():
-    # scikit-rf's DefinedGammaZ0 line cascaded with a load is an independent implementation.
+    # scikit-rf's DefinedGammaZ0 line cascaded with a load is an independent
+    # implementation; its propagation constant is built here from the definitions
+    # (Pozar §2.7: α = (dB/m)/(20·log10 e), scaled with √(f/10 MHz) as the coax model
+    # states; β = 2πf/(VF·c)), not taken from the project's Coax.gamma.
     d = _design()
     coax = Coax(50.0, 0.66, 4.0, 37.0)
     remote = RemoteSpec(9.0, coax)
     f = np.array([1.8e6, 3.6e6, 7.1e6, 14.2e6])
     seen = seen_termination_ohm(d, remote, f)
     freq = skrf.Frequency.from_f(f, unit="Hz")
-    media = skrf.media.DefinedGammaZ0(frequency=freq, z0=50.0, gamma=coax.gamma(f))
+    alpha = 4.0 / 100.0 / (20.0 * np.log10(np.e)) * np.sqrt(f / 10e6)
+    gamma = alpha + 1j * 2 * np.pi * f / (0.66 * C0_M_PER_S)
+    media = skrf.media.DefinedGammaZ0(frequency=freq, z0=50.0, gamma=gamma)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         for i, s in enumerate(d.settings):

@@ -135,10 +135,19 @@ def test_acl_keeps_other_clients_off_the_device_topics(make_broker):
         intruder = Watcher(broker.host, broker.port, [T + "#"], user="other", password="o-pw")
         try:
             assert intruder.connected.wait(3.0)
-            intruder.publish(T + "req", b"NS1 7 SET end=B mask=99 open=1 *0000\n")
-            intruder.publish(T + "ohms/set", b"2000")
-            intruder.publish(T + "end/set", b"B" if before[0] == "A" else b"A")
-            time.sleep(1.0)
+            sent = [intruder.publish(T + "req", b"NS1 7 SET end=B mask=99 open=1 *0000\n"),
+                    intruder.publish(T + "ohms/set", b"2000"),
+                    intruder.publish(T + "end/set", b"B" if before[0] == "A" else b"A")]
+            # the broker acknowledged each one (QoS 1 PUBACK, MQTT 3.1.1 §4.3.2) and has
+            # decided about it: denied by the ACL, it was never forwarded to the board
+            for info in sent:
+                info.wait_for_publish(3.0)
+                assert info.is_published()
+            # a request from the host afterwards reaches the board after anything the
+            # broker forwarded before it (one connection, in order): once it is answered,
+            # the board has seen all it will ever see of the intruder's messages
+            with Controller(open_link(broker.url(DEV, "host", "h-pw")), timeout_s=3.0) as c:
+                c.status()
             assert board.state() == before
         finally:
             intruder.close()

@@ -77,17 +77,60 @@ def test_snr_loss_at_10db_margin():
     assert snr_loss_db(0.0) == pytest.approx(3.0103, abs=1e-3)
 
 
-def test_required_preamp_gain_meets_margin_exactly():
-    # the solved gain must give the margin by the Friis cascade (consistency with Friis,
-    # Pozar eq. 10.23), and 1 dB less gain must fall short
+def test_required_preamp_gain_by_hand():
+    # Worked by hand from Friis (Pozar 4th ed. eq. 10.23) for preamp (Fp, Gp) ahead of a
+    # cable of loss L (F = L, G = 1/L, §10.2) and a receiver Frx:
+    #   F = Fp + (L − 1)/Gp + (Frx − 1)·L/Gp = Fp + (L·Frx − 1)/Gp.
+    # A margin m needs F − 1 = ext/10^(m/10), so Gp = (L·Frx − 1)/(ext/10^(m/10) − (Fp − 1)).
+    # Numbers: rural at 1.83 MHz, Fam = 67.2 − 27.7·log10(1.83) = 59.93 dB (P.372 Table 1);
+    # η = −42 dB; ext = η·fa + (1 − η) = 63.09; L = 1.5 dB, Frx = 12 dB, Fp = 3 dB:
+    # Gp = (1.4125·15.849 − 1)/(6.309 − 0.9953) = 4.025 -> 6.05 dB.
     chain = ReceiveChain(receiver_nf_db=12.0, cable_loss_db=1.5, preamp_nf_db=3.0,
                          preamp_at="antenna")
-    ext = antenna_noise_kt0(external_noise_figure_db(1.83e6, "rural"), -42.0)
-    g = required_preamp_gain_db(chain, ext, 10.0)
-    assert g is not None and g > 1.0
-    margin = 10 * math.log10(ext / (chain.noise_factor(g) - 1.0))
-    assert margin == pytest.approx(10.0, abs=1e-6)
-    assert 10 * math.log10(ext / (chain.noise_factor(g - 1.0) - 1.0)) < 10.0
+    fam = 67.2 - 27.7 * math.log10(1.83)
+    eta = 10 ** (-4.2)
+    ext = eta * 10 ** (fam / 10) + (1 - eta)
+    assert antenna_noise_kt0(external_noise_figure_db(1.83e6, "rural"), -42.0) == \
+        pytest.approx(ext, rel=1e-12)
+    big_l, frx, fp = 10 ** 0.15, 10 ** 1.2, 10 ** 0.3
+    gp = (big_l * frx - 1) / (ext / 10.0 - (fp - 1))
+    assert required_preamp_gain_db(chain, ext, 10.0) == pytest.approx(10 * math.log10(gp), abs=1e-9)
+    assert 10 * math.log10(gp) == pytest.approx(6.05, abs=0.01)
+    # the same chain with the preamp in the shack: F = L + L(Fp − 1) + L(Frx − 1)/Gp
+    shack = ReceiveChain(receiver_nf_db=12.0, cable_loss_db=1.5, preamp_nf_db=3.0,
+                         preamp_at="shack")
+    gp_shack = big_l * (frx - 1) / (ext / 10.0 - (big_l - 1) - big_l * (fp - 1))
+    assert required_preamp_gain_db(shack, ext, 10.0) == pytest.approx(
+        10 * math.log10(gp_shack), abs=1e-9)
+
+
+@pytest.mark.parametrize("category, f_mhz, eta_db, rx_nf_db", [
+    ("galactic", 14.0, -25.0, 8.0),     # both noise terms of the same size
+    ("quiet-rural", 3.6, -40.0, 6.0),   # thermal part of the loss dominant
+    ("residential", 7.1, -35.0, 10.0),  # ambient ahead
+])
+def test_noise_efficiency_mixing_at_interior_values(category, f_mhz, eta_db, rx_nf_db):
+    # By hand: ITU-R P.372 Table 1 gives Fam = c − d·log10(f_MHz); a loop of noise
+    # efficiency η delivers η·fa of the ambient plus (1 − η) of thermal noise from its
+    # own loss at T0 (Nyquist; the standard mixing of an antenna of radiation efficiency
+    # η, Pozar 4th ed. §10.1 / Kraus "antenna temperature", from memory), in kT0b units.
+    # The chain's own noise is F − 1 (Friis); the margin is their ratio and the SNR
+    # loss 10·log10(1 + 10^(−m/10)) (common practice). Interior η: neither term vanishes.
+    c, d = P372_TABLE1[category]
+    fa = 10 ** ((c - d * math.log10(f_mhz)) / 10)
+    eta = 10 ** (eta_db / 10)
+    ext = eta * fa + (1 - eta)
+    assert 0.2 < eta * fa / (1 - eta) < 50      # really interior
+    assert antenna_noise_kt0(10 * math.log10(fa), eta_db) == pytest.approx(ext, rel=1e-12)
+    chain = ReceiveChain(receiver_nf_db=rx_nf_db)
+    b = noise_budget(f_mhz * 1e6, eta_db, chain, category, 500.0)
+    internal = 10 ** (rx_nf_db / 10) - 1
+    assert b.margin_db == pytest.approx(10 * math.log10(ext / internal), abs=1e-9)
+    assert b.snr_loss_db == pytest.approx(10 * math.log10(1 + internal / ext), abs=1e-9)
+    # referred powers: kT0b in 500 Hz is −204 + 27 dBW = −147 dBm (P.372 eq. 6)
+    floor_dbm = -204.0 + 10 * math.log10(500.0) + 30.0
+    assert b.external_dbm == pytest.approx(floor_dbm + 10 * math.log10(ext), abs=1e-9)
+    assert b.internal_dbm == pytest.approx(floor_dbm + 10 * math.log10(internal), abs=1e-9)
 
 
 def test_preamp_too_noisy_is_impossible():
