@@ -20,8 +20,10 @@ sampling (0/1/2); then the server streams interleaved unsigned 8-bit I/Q centred
 127.5.
 
 A thread drains the stream all the time (the server would otherwise queue old samples),
-and a reading uses only samples that arrive after it was asked for, less a short
-``skip_s`` (default 0.01 s) for data already in flight. The level is in dBFS; it moves
+and a reading uses only samples that arrive after it was asked for: it passes over what
+already waits in the socket's receive queue (``FIONREAD`` where the system has it), one
+reader chunk that may be on its way to the buffer, and a short ``skip_s`` (default
+0.01 s) for data still in flight from the server. The level is in dBFS; it moves
 with the gain, so keep ``gain`` fixed (not ``auto``) while comparing settings.
 """
 
@@ -29,6 +31,7 @@ from __future__ import annotations
 
 import socket
 import struct
+import sys
 import threading
 import time
 from collections import deque
@@ -40,7 +43,21 @@ from nullsteer.reception.receivers.spectrum import u8_to_complex
 
 DEFAULT_PORT = 1234
 HEADER_MAGIC = b"RTL0"
+RECV_CHUNK = 8192  # bytes per read of the drain thread
 DIRECT_BELOW_HZ = 24e6  # the usual tuners (R820T and kin) start about here (common practice)
+
+
+def queued_bytes(sock: socket.socket | None) -> int:
+    """Bytes waiting in ``sock``'s receive queue (ioctl FIONREAD); 0 where unknown."""
+    if sock is None or sys.platform == "win32":
+        return 0
+    import fcntl
+    import termios
+    try:
+        buf = fcntl.ioctl(sock.fileno(), termios.FIONREAD, b"\0\0\0\0")
+    except OSError:
+        return 0
+    return max(0, struct.unpack("i", buf)[0])
 
 
 class Command:
@@ -152,7 +169,7 @@ class RtlTcpReceiver:
         assert sock is not None
         while not self._stop:
             try:
-                chunk = sock.recv(1 << 16)
+                chunk = sock.recv(RECV_CHUNK)
             except socket.timeout:
                 continue
             except OSError as exc:
@@ -192,7 +209,8 @@ class RtlTcpReceiver:
     def _fresh_bytes(self, count: int) -> bytes:
         """``count`` stream bytes that arrive after this call (an even start: I then Q)."""
         with self._cond:
-            start = self._total + 2 * int(self.skip_s * self.rate_hz)
+            start = (self._total + queued_bytes(self._sock) + RECV_CHUNK
+                     + 2 * int(self.skip_s * self.rate_hz))
             start += start % 2
             end = start + count
             deadline = time.monotonic() + self.timeout_s + count / (2 * self.rate_hz)
