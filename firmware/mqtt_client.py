@@ -174,14 +174,22 @@ def connect_packet(client_id: str, keepalive_s: int, clean: bool = True,
     return packet(CONNECT, head + payload)
 
 
+def publish_head(topic: str, payload_len: int, retain: bool = False, qos: int = 0,
+                 pid: int = 0, dup: bool = False) -> bytes:
+    """PUBLISH (§3.3) up to its payload: fixed header, topic and (qos 1) packet id. The
+    payload follows as it is, so a large message is never copied into a second buffer
+    (a board's heap is small and fragments)."""
+    first = PUBLISH | (qos << 1) | (1 if retain else 0) | (0x08 if dup else 0)
+    var = _str(topic)
+    if qos:
+        var += bytes((pid >> 8, pid & 0xFF))
+    return bytes((first,)) + encode_length(len(var) + payload_len) + var
+
+
 def publish_packet(topic: str, payload: bytes, retain: bool = False, qos: int = 0,
                    pid: int = 0, dup: bool = False) -> bytes:
-    """PUBLISH (§3.3); ``pid`` is used only with qos 1."""
-    first = PUBLISH | (qos << 1) | (1 if retain else 0) | (0x08 if dup else 0)
-    body = _str(topic)
-    if qos:
-        body += bytes((pid >> 8, pid & 0xFF))
-    return packet(first, body + payload)
+    """PUBLISH (§3.3) whole; ``pid`` is used only with qos 1."""
+    return publish_head(topic, len(payload), retain, qos, pid, dup) + payload
 
 
 def subscribe_packet(pid: int, topics: "list") -> bytes:
@@ -363,7 +371,8 @@ class MQTTClient:
         if isinstance(payload, str):
             payload = payload.encode()
         pid = self._next_pid() if qos else 0
-        self._send(publish_packet(topic, payload, retain, qos, pid))
+        self._send(publish_head(topic, len(payload), retain, qos, pid))
+        self._send(payload)
         if qos:
             self.unacked[pid] = _ticks_ms()
         return pid

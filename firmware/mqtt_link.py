@@ -69,6 +69,7 @@ except ImportError:  # MicroPython
 if TYPE_CHECKING:
     from typing import Any
 
+import gc
 import json
 
 import wire
@@ -530,7 +531,10 @@ class BoardMqtt:
             self.info.get("board", "?"), [self.m["labels"]["A"], self.m["labels"]["B"]],
             discovery.ohms_span(self.table), sorted(self.m["presets"]), self.has_open,
             self.has_short, self.m["bearing"] is not None, self.page_url or None)
-        self.client.publish(topic, json.dumps(payload), True, 1)
+        text = json.dumps(payload)
+        del payload
+        gc.collect()  # the config is the board's largest message: room for it in one piece
+        self.client.publish(topic, text, True, 1)
 
     # --- incoming --------------------------------------------------------------------
     def on_message(self, topic: str, payload: bytes, retained: bool) -> None:

@@ -1,6 +1,7 @@
 """`nullsteer ladder` end to end: quick form, JSON keys, board file, exit code 2 on bad input."""
 
 import json
+import re
 
 import pytest
 
@@ -69,3 +70,22 @@ def test_config_errors_name_the_key(capsys, tmp_path):
     cfg.write_text('[ladder]\nrelays = "many"\nrange_ohm = [400, 2500]\n')
     code, _, err = _run(capsys, "--config", str(cfg))
     assert code == 2 and "ladder.relays" in err
+
+
+def test_range_not_reached_is_said(capsys):
+    # 4 relays cannot reach 2500 ohm (an independent review found the top at 2270 ohm):
+    # the top setting of a series-shorting ladder is the sum of every part (all relays
+    # open; Ohm's law for resistors in series), so the warning must name that sum
+    code, out, err = _run(capsys, "--range", "400:2500", "--relays", "4", "--series", "E24",
+                          "--json")
+    assert code == 0
+    doc = json.loads(out)
+    top = sum(p["value_ohm"] for p in doc["parts"])
+    assert top < 2500 / 1.05
+    assert len(doc["warnings"]) == 1 and "range not reached" in doc["warnings"][0]
+    named = float(re.search(r"highest setting ([0-9.]+) ohm", doc["warnings"][0]).group(1))
+    assert named == pytest.approx(top, abs=1.0)  # contacts add 0.1 ohm each
+    assert err.startswith("warning: range not reached")
+    # 7 relays end within the parts' tolerance of 2500 ohm: no word
+    code, out, err = _run(capsys, "--range", "400:2500", "--relays", "7", "--json")
+    assert code == 0 and json.loads(out)["warnings"] == [] and err == ""

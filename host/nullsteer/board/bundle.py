@@ -27,17 +27,7 @@ its MQTT password to any server that answers.
 
 Putting a bundle on a board: :mod:`nullsteer.board.deploy`.
 
-Station file keys read here, section ``[firmware]`` (all optional):
-
-``board_port``        board side of a serial link when the board file names the
-                      simulator's pty: ``stdio`` (USB, default) or ``uart``
-``uart_id``           UART number (default 0)
-``baud``              UART speed (default 115200)
-``tx_pin``, ``rx_pin`` UART pins (default: the port's own)
-``de_pin``            RS-485 driver-enable pin (high while sending)
-``watchdog_ms``       overrides the board file's watchdog (0 = off, else >= 500)
-``wifi_ssid``         Wi-Fi network of an MQTT board
-``wifi_password_env`` environment variable holding its password
+Station file keys read here: ``[firmware]``, described in :data:`FIRMWARE`.
 """
 
 from __future__ import annotations
@@ -52,7 +42,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from nullsteer.station.config import Station, check_unknown, get_int, get_str
+from nullsteer.station.config import Station
+from nullsteer.station.schema import Key, Kind, Section
 from nullsteer.board.devices import Device
 from nullsteer.sim.firmware import check_board_config
 from nullsteer.errors import ConfigError
@@ -69,8 +60,24 @@ _BOARD_NAME = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.-]{0,63}$")
 #: board.json keys that hold secrets (never printed)
 SECRET_KEYS = (("mqtt", "password"), ("mqtt", "key_hex"), ("mqtt", "wifi", "password"))
 ENTRY = "main.py"
-FIRMWARE_KEYS = frozenset({"board_port", "uart_id", "baud", "tx_pin", "rx_pin", "de_pin",
-                           "watchdog_ms", "wifi_ssid", "wifi_password_env"})
+_PIN = "pin number or name (default: the port's own)"
+FIRMWARE = Section("firmware", """What `nullsteer firmware bundle` fills into the board's
+config besides the board file (all optional).""", (
+    Key("board_port", Kind.STRING, "Board side of a serial link when the board file names "
+        "the simulator's pty: `stdio` (USB) or `uart`.", default="stdio",
+        choices=tuple(PORT_MODULES)),
+    Key("uart_id", Kind.INTEGER, "UART number.", default=0, minimum=0, maximum=15),
+    Key("baud", Kind.INTEGER, "UART speed.", "baud", 115200, 300, 3000000),
+    Key("tx_pin", Kind.ANY, f"UART transmit {_PIN}."),
+    Key("rx_pin", Kind.ANY, f"UART receive {_PIN}."),
+    Key("de_pin", Kind.ANY, "RS-485 driver-enable pin (high while sending)."),
+    Key("watchdog_ms", Kind.INTEGER, "Overrides the board file's watchdog: 0 off, else at "
+        "least 500.", "ms", None, 0, 600000),
+    Key("wifi_ssid", Kind.STRING, "Wi-Fi network of an MQTT board."),
+    Key("wifi_password_env", Kind.STRING, "Environment variable holding the Wi-Fi password "
+        "(never the password itself in the file)."),
+))
+FIRMWARE_KEYS = FIRMWARE.names
 _FW_VERSION = re.compile(r'^FW_VERSION\s*=\s*"([^"]+)"', re.MULTILINE)
 _VERSION = re.compile(r"^(\d+)\.(\d+)\.(\d+)")
 
@@ -175,25 +182,24 @@ def _pin_key(table: dict[str, Any], key: str) -> int | str | None:
 def parse_firmware_settings(station: Station) -> FirmwareSettings:
     """Read ``[firmware]``; bad values raise ConfigError naming the key."""
     t = station.section("firmware")
-    check_unknown(t, FIRMWARE_KEYS, "firmware")
-    wd = t.get("watchdog_ms")
+    FIRMWARE.check(t, "firmware")
+    wd = FIRMWARE.get(t, "watchdog_ms", "firmware")
     if wd is not None:
-        wd = get_int(t, "watchdog_ms", "firmware", minimum=0, maximum=600000)
         if 0 < wd < 500:
             raise ConfigError("firmware.watchdog_ms", f"use 0 (off) or at least 500, got {wd}")
     password = None
     if "wifi_password_env" in t:
-        name = get_str(t, "wifi_password_env", "firmware")
+        name = FIRMWARE.get(t, "wifi_password_env", "firmware")
         if name not in os.environ:
             raise ConfigError("firmware.wifi_password_env", f"environment variable {name} is not set")
         password = os.environ[name]
     return FirmwareSettings(
-        board_port=get_str(t, "board_port", "firmware", "stdio", choices=tuple(PORT_MODULES)),
-        uart_id=get_int(t, "uart_id", "firmware", 0, minimum=0, maximum=15),
-        baud=get_int(t, "baud", "firmware", 115200, minimum=300, maximum=3000000),
+        board_port=FIRMWARE.get(t, "board_port", "firmware"),
+        uart_id=FIRMWARE.get(t, "uart_id", "firmware"),
+        baud=FIRMWARE.get(t, "baud", "firmware"),
         tx_pin=_pin_key(t, "tx_pin"), rx_pin=_pin_key(t, "rx_pin"), de_pin=_pin_key(t, "de_pin"),
-        watchdog_ms=wd, wifi_ssid=get_str(t, "wifi_ssid", "firmware", None)
-        if "wifi_ssid" in t else None, wifi_password=password)
+        watchdog_ms=wd, wifi_ssid=FIRMWARE.get(t, "wifi_ssid", "firmware"),
+        wifi_password=password)
 
 
 def board_link(existing: dict[str, Any] | None, fw: FirmwareSettings) -> dict[str, Any]:

@@ -1,20 +1,7 @@
 """The boards a station drives: the ``[[device]]`` entries of the station file.
 
-Keys of each entry:
-
-``id``          short name, letters/digits/``-``/``_`` (used in MQTT topics too)
-``link``        transport URL (see :mod:`nullsteer.board.links`); for ``sim://`` a relative
-                ``state=DIR`` is taken relative to the file, so a simulated board keeps its
-                relay state from one command to the next as a real one does
-``board``       the board config JSON (pins, roles, ladder table), relative to the file
-``key_file``    optional file holding the shared signing key (hex), relative to the file;
-                refused when others may write it (they could change the key), a warning
-                when others may read it (``chmod 600`` it)
-``key_env``     optional environment variable holding the shared key (hex)
-``timeout_s``   reply timeout, seconds (default 1.0)
-``retries``     extra attempts after a timeout (default 2)
-``receiver``    optional receiver URL heard through this antenna (``rigctl://``,
-                ``rtltcp://``, ``iqwav:``, ``sim://``; see :mod:`nullsteer.reception.receivers`)
+Their keys are described once in :data:`DEVICE` (type, default, range), which also
+writes their part of ``docs/station-file.md``.
 """
 
 from __future__ import annotations
@@ -27,12 +14,30 @@ from dataclasses import dataclass
 from pathlib import Path
 from urllib.parse import parse_qsl, urlencode, urlsplit
 
-from nullsteer.station.config import Station, check_unknown, get_float, get_int, get_str
 from nullsteer.errors import ConfigError, redacted
+from nullsteer.station.config import Station
+from nullsteer.station.schema import REQUIRED, Key, Kind, Section
 
 _ID = re.compile(r"^[A-Za-z0-9_-]{1,32}$")
-_KEYS = frozenset({"id", "link", "board", "key_file", "key_env", "timeout_s", "retries",
-                   "receiver"})
+
+DEVICE = Section("device", """One board the station drives (`--device ID` picks it when
+there are several). Relative paths are taken relative to the station file.""", (
+    Key("id", Kind.STRING, "Short name: 1-32 letters, digits, `-` or `_` (also used in MQTT "
+        "topics).", default=REQUIRED),
+    Key("link", Kind.STRING, "Transport URL: `serial:///dev/ttyUSB0`, `mqtt://` or "
+        "`mqtts://` broker URL, `sim://` (a simulated board; a relative `state=DIR` keeps "
+        "its relay state between commands).", default=REQUIRED),
+    Key("board", Kind.STRING, "The board config JSON (pins, roles, ladder table)."),
+    Key("key_file", Kind.STRING, "File holding the shared signing key (hex, >= 16 bytes); "
+        "refused when others may write it, a warning when others may read it (`chmod 600`)."),
+    Key("key_env", Kind.STRING, "Instead of `key_file`: environment variable holding the key "
+        "(hex)."),
+    Key("timeout_s", Kind.NUMBER, "Reply timeout.", "s", 1.0, 0.01, 600.0),
+    Key("retries", Kind.INTEGER, "Extra attempts after a timeout or a damaged reply.",
+        default=2, minimum=0, maximum=20),
+    Key("receiver", Kind.STRING, "Receiver heard through this antenna, a URL: "
+        "`rigctl://HOST:PORT`, `rtltcp://HOST:PORT?...`, `iqwav:PATH`, `sim://`."),
+), form="array")
 
 
 @dataclass(frozen=True)
@@ -88,38 +93,37 @@ def check_key_file(path: Path, where: str) -> None:
 
 def parse_device(station: Station, table: dict, index: int) -> Device:
     where = f"device[{index}]"
-    check_unknown(table, _KEYS, where)
-    dev_id = get_str(table, "id", where)
+    DEVICE.check(table, where)
+    dev_id = DEVICE.get(table, "id", where)
     if not _ID.match(dev_id):
         raise ConfigError(f"{where}.id", f"use 1-32 letters, digits, '-' or '_', got {dev_id!r}")
-    link = get_str(table, "link", where)
+    link = DEVICE.get(table, "link", where)
     if "://" not in link:
         raise ConfigError(f"{where}.link", f"expected a URL such as serial:///dev/ttyUSB0, got {redacted(link)!r}")
     link = _resolve_sim_state(station, link)
-    board = table.get("board")
-    board_path = station.resolve(get_str(table, "board", where)) if board is not None else None
+    board = DEVICE.get(table, "board", where)
+    board_path = station.resolve(board) if board is not None else None
     key = None
     if "key_file" in table:
-        path = station.resolve(get_str(table, "key_file", where))
+        path = station.resolve(DEVICE.get(table, "key_file", where))
         check_key_file(path, f"{where}.key_file")
         try:
             key = _read_key(path.read_text(), f"{where}.key_file")
         except OSError as exc:
             raise ConfigError(f"{where}.key_file", f"cannot read {path}: {exc.strerror}") from None
     elif "key_env" in table:
-        name = get_str(table, "key_env", where)
+        name = DEVICE.get(table, "key_env", where)
         if name not in os.environ:
             raise ConfigError(f"{where}.key_env", f"environment variable {name} is not set")
         key = _read_key(os.environ[name], f"{where}.key_env")
-    receiver = table.get("receiver")
+    receiver = DEVICE.get(table, "receiver", where)
     if receiver is not None:
-        receiver = get_str(table, "receiver", where)
         if ":" not in receiver:
             raise ConfigError(f"{where}.receiver", "expected a URL such as "
                                                    f"rigctl://127.0.0.1:4532, got {receiver!r}")
     return Device(id=dev_id, link=link, board_config=board_path, key=key, receiver=receiver,
-                  timeout_s=get_float(table, "timeout_s", where, 1.0, minimum=0.01),
-                  retries=get_int(table, "retries", where, 2, minimum=0, maximum=20))
+                  timeout_s=DEVICE.get(table, "timeout_s", where),
+                  retries=DEVICE.get(table, "retries", where))
 
 
 def parse_devices(station: Station) -> list[Device]:

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import argparse
 import math
+import sys
 from dataclasses import replace
 from typing import Any
 
@@ -20,6 +21,7 @@ from nullsteer.ladder import (PARTS_CAUTION, LadderSpec, Parasitics, parse_ladde
                               settings_rows, wiring_diagram, write_board_ladder)
 from nullsteer.ladder.station import design_for_station
 from nullsteer.ladder.network import format_ohm
+from nullsteer.ladder.outputs import reach_warnings
 from nullsteer.ladder.spec import parse_relays
 from nullsteer.ladder.topology import TOPOLOGIES
 
@@ -115,6 +117,7 @@ def run(args: argparse.Namespace) -> int:
     out["parts"] = [r.to_json() for r in parts_list(design, spec.induced_w)]
     out["parts_caution"] = PARTS_CAUTION
     out["induced_w_assumed"] = spec.induced_w
+    out["warnings"] = reach_warnings(design)
     if args.board_config:
         write_board_ladder(design, args.board_config)
         out["board_config"] = args.board_config
@@ -122,6 +125,8 @@ def run(args: argparse.Namespace) -> int:
         print_json(out)
     else:
         print(_human(design, out))
+    for w in out["warnings"]:
+        print(f"warning: {w}", file=sys.stderr)
     return 0
 
 

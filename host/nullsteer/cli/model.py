@@ -20,15 +20,14 @@ from dataclasses import replace
 
 import numpy as np
 
-from nullsteer.station.bearing import FedEnd, null_bearing_deg
-from nullsteer.antenna.metrics import NULL_DEPTH_CEILING_DB, azimuth_pattern, null_of
-from nullsteer.antenna.needed import needed_range
+from nullsteer.station.bearing import FedEnd
+from nullsteer.antenna.metrics import NULL_DEPTH_CEILING_DB
 from nullsteer.antenna.ports import LoopModel
 from nullsteer.antenna.station import station_loop
 from nullsteer.antenna.specs import (SOIL_PRESETS, BandSpec, parse_antenna,
                                      parse_elevations_deg, parse_feed, parse_ground,
                                      parse_termination)
-from nullsteer.antenna.validity import single_null_warnings
+from nullsteer.antenna.summary import summarise
 from nullsteer.cli.common import add_json_flag, print_json
 from nullsteer.station.config import load_station, parse_freqs_mhz
 from nullsteer.errors import ConfigError
@@ -123,32 +122,11 @@ def load_specs(args):
     return antenna, ground, BandSpec(freqs_hz=freqs, elevations_deg=els), feed
 
 
-def finite_or_none(value):
-    """``value`` with every non-finite float replaced by None (JSON has no NaN/Infinity)."""
-    if isinstance(value, dict):
-        return {k: finite_or_none(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [finite_or_none(v) for v in value]
-    if isinstance(value, (float, np.floating)):
-        return float(value) if np.isfinite(value) else None
-    return value
-
-
-def _termination_label(r: float | None) -> dict:
-    if r is None:
-        return {"kind": "optimum", "ohm": None}
-    if r == 0:
-        return {"kind": "short", "ohm": 0.0}
-    if np.isinf(r):
-        return {"kind": "open", "ohm": None}
-    return {"kind": "resistor", "ohm": r}
-
-
 def compute(antenna, ground, band, feed, fed_end: FedEnd, freq_key: str = "band.freqs_mhz"
             ) -> dict:
-    """The JSON report of ``nullsteer model`` (also used by the human table).
+    """The JSON report of ``nullsteer model`` (also used by the human table): the loop
+    solved over the band, then :func:`nullsteer.antenna.summary.summarise`.
 
-    The figures are at ``antenna.termination_ohm`` when it is set, else at the optimum.
     A model too large for the budget raises ConfigError naming ``freq_key``.
     """
     try:
@@ -157,55 +135,7 @@ def compute(antenna, ground, band, feed, fed_end: FedEnd, freq_key: str = "band.
         if exc.key == "band.freqs_mhz":
             raise ConfigError(freq_key, exc.message) from None
         raise
-    els = np.array(band.elevations_deg)
-    r_opt = sol.optimum_termination_ohm(fed_end, els)
-    r_each = sol.optimum_termination_ohm(fed_end, els, each=True)
-    fb_each = np.stack([sol.fb_db(r_each[:, j], fed_end, e) for j, e in enumerate(els)], 1)
-    front, back = sol.axis_bearings_deg(fed_end)
-
-    def span_fb(r):
-        gf = sol.gain(r, fed_end, front, els).sum(-1)
-        gb = sol.gain(r, fed_end, back, els).sum(-1)
-        return 10 * np.log10(np.maximum(gf, 1e-300) / np.maximum(gb, 1e-300))
-
-    fb_opt = span_fb(r_opt)
-    r_eval = r_opt if antenna.termination_ohm is None else np.full(r_opt.shape,
-                                                                   antenna.termination_ohm)
-    fb_span = span_fb(r_eval)
-    zfeed = sol.feed_impedance_ohm(r_eval, fed_end)
-    rdf = sol.rdf_db(r_eval, fed_end)
-    mid_el = float(els[len(els) // 2])
-    az, pat = azimuth_pattern(sol, r_eval, fed_end, mid_el)
-    null = null_of(az, pat[:, 0])
-    gain_front = sol.gain_dbi(r_eval, fed_end, front, mid_el)
-    realized = sol.gain_dbi(r_eval, fed_end, front, mid_el, realized=True)
-    loss = sol.termination_loss_fraction(r_eval, fed_end)
-    nr = needed_range(sol, tuple(els) if len(els) > 2 else (els.min(), els.max()),
-                      fed_ends=(FedEnd.A, FedEnd.B))
-    rows = []
-    for i, f in enumerate(sol.freqs_hz):
-        rows.append({
-            "freq_mhz": f / 1e6, "r_opt_ohm": float(r_opt[i]),
-            "fb_db_at_r_opt": float(fb_opt[i]), "fb_db": float(fb_span[i]),
-            "feed_impedance_ohm": [float(zfeed[i].real), float(zfeed[i].imag)],
-            "rdf_db": float(rdf[i]), "gain_front_dbi": float(gain_front[i]),
-            "realized_gain_front_dbi": float(realized[i]),
-            "termination_loss_pct": float(100 * loss[i]),
-            "null_bearing_deg": float(null.bearing_deg[i]),
-            "null_depth_db": float(null.depth_db[i]),
-            "by_elevation": [{"elevation_deg": float(e), "r_opt_ohm": float(r_each[i, j]),
-                              "fb_db_at_r_opt": float(fb_each[i, j])}
-                             for j, e in enumerate(els)]})
-    warnings = list(sol.warnings) + single_null_warnings(sol.freqs_hz, fb_opt)
-    return {"fed_end": fed_end.value, "null_toward_deg": null_bearing_deg(
-                fed_end, antenna.end_a_bearing_deg),
-            "termination": _termination_label(antenna.termination_ohm),
-            "elevations_deg": [float(e) for e in els], "pattern_elevation_deg": mid_el,
-            "segments": sol.mesh.n_segments, "unknowns": sol.mesh.n_unknowns,
-            "frequencies": rows, "needed_range_ohm": [nr.lo_ohm, nr.hi_ohm],
-            "fb_loss_db_per_pct": nr.fb_loss_db_per_pct,
-            "loss_curve_db": {f"{k:g}": v for k, v in nr.loss_curve_db.items()},
-            "warnings": warnings}
+    return summarise(sol, antenna, band.elevations_deg, fed_end)
 
 
 def _num(v, fmt: str, width: int) -> str:
@@ -248,7 +178,7 @@ def run(args: argparse.Namespace) -> int:
     for w in rep["warnings"]:
         print(f"warning: {w}", file=sys.stderr)
     if args.json:
-        print_json(finite_or_none(rep))
+        print_json(rep)
     else:
         _print_table(rep)
     return 0

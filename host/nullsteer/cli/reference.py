@@ -10,8 +10,11 @@ from nullsteer.station.config import SECTIONS
 from nullsteer.station.schema import registered, section_markdown
 
 #: The modules whose readers declare station-file sections.
-READER_MODULES = ("nullsteer.station.site", "nullsteer.antenna.sections", "nullsteer.schedule.rules",
-                  "nullsteer.reception.noise", "nullsteer.reception.virtual")
+READER_MODULES = ("nullsteer.station.site", "nullsteer.antenna.sections",
+                  "nullsteer.ladder.spec", "nullsteer.reception.noise",
+                  "nullsteer.board.devices", "nullsteer.board.bundle",
+                  "nullsteer.station.presets", "nullsteer.schedule.rules",
+                  "nullsteer.reception.virtual")
 
 HEADER = """# The station file
 

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 import json
 import os
 import tempfile
@@ -100,6 +102,28 @@ def settings_rows(design: LadderDesign) -> list[tuple[int, float, float]]:
     for i, st in enumerate(s):
         step = (s[i + 1].ohms / st.ohms - 1) * 100 if i + 1 < len(s) and st.ohms > 0 else float("nan")
         out.append((st.mask, st.ohms, step))
+    return out
+
+
+def reach_warnings(design: LadderDesign) -> list[str]:
+    """Plain warnings when the settings do not span the wanted range: the lowest setting
+    above its low end or the highest below its high end by more than the resistors'
+    tolerance (a smaller shortfall is lost in the parts' own spread). The worst-case
+    error already counts the shortfall; this says where it comes from."""
+    finite = [st.ohms for st in design.settings if math.isfinite(st.ohms) and st.ohms > 0]
+    if not finite:
+        return ["no setting has a finite resistance: the range is not reached"]
+    out = []
+    lo, hi = min(finite), max(finite)
+    slack = 1.0 + design.tolerance_pct / 100.0
+    if lo > design.r_min_ohm * slack:
+        out.append(f"range not reached: the lowest setting {lo:.1f} ohm is above the wanted "
+                   f"{design.r_min_ohm:.1f} ohm ({(lo / design.r_min_ohm - 1) * 100:.1f} % "
+                   "high); add a relay or lower the base")
+    if hi * slack < design.r_max_ohm:
+        out.append(f"range not reached: the highest setting {hi:.1f} ohm is below the wanted "
+                   f"{design.r_max_ohm:.1f} ohm ({(1 - hi / design.r_max_ohm) * 100:.1f} % "
+                   "low); add a relay or narrow the range")
     return out
 
 

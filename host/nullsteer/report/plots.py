@@ -71,7 +71,8 @@ def azimuth_figure(az_deg: np.ndarray, gains_dbi: dict[str, np.ndarray], elevati
                    span_db: float = 60.0, title: str = "") -> Any:
     """Azimuth pattern at one elevation; curves keyed "A", "B" (fed end) and "open".
 
-    Gains in dBi; the radial axis shows ``span_db`` below the overall peak (the open loop
+    Gains in dBi, the loop's own (directivity times radiation efficiency), not the
+    realized gain at the receiver; the radial axis shows ``span_db`` below the overall peak (the open loop
     burns nothing in a termination, so it is usually some 20-30 dB above the terminated
     patterns; all curves share one scale).
     """
@@ -99,7 +100,7 @@ def azimuth_figure(az_deg: np.ndarray, gains_dbi: dict[str, np.ndarray], elevati
     ax.set_thetagrids(range(0, 360, 30), [f"{b}°" + {0: " N", 90: " E", 180: " S", 270: " W"}.get(b, "")
                                           for b in range(0, 360, 30)])
     ax.set_title(title or f"Azimuth pattern at {elevation_deg:g}° elevation, "
-                          f"{freq_hz / 1e6:g} MHz (gain, dBi)", pad=18)
+                          f"{freq_hz / 1e6:g} MHz (loop gain, dBi; not realized)", pad=18)
     ax.legend(loc="lower left", bbox_to_anchor=(-0.12, -0.12), fontsize=8)
     return fig
 
@@ -119,7 +120,7 @@ def elevation_figure(el_deg: np.ndarray, front_dbi: np.ndarray, back_dbi: np.nda
     ax.set_ylim(peak - span_db, peak + 3)
     ax.set_xlim(0, 90)
     ax.set_xlabel("elevation angle (degrees above the horizon)")
-    ax.set_ylabel("gain (dBi)")
+    ax.set_ylabel("loop gain (dBi; not realized gain)")
     ax.set_title(f"Elevation pattern along the axis, {freq_hz / 1e6:g} MHz, "
                  f"termination {termination_ohm:.0f} Ω")
     ax.grid(True, alpha=0.4)
@@ -265,7 +266,7 @@ def station_figure(kind: str, data: PlotData, freq_hz: float | None = None,
         g["open"] = sol.gain_dbi(np.inf, "A", az, el, freq_index=fi)[0]
         return azimuth_figure(az, g, el, f, null_bearing_deg(data.fed_end, data.end_a_bearing_deg),
                               title=f"Azimuth pattern at {el:g}° elevation, {f / 1e6:g} MHz, "
-                                    f"{r:.0f} Ω (gain, dBi)")
+                                    f"{r:.0f} Ω\n(loop gain, dBi: directivity × efficiency; not realized gain)")
     if kind == "elevation":
         els = np.arange(1.0, 90.5, 1.0)
         front, back = sol.axis_bearings_deg(data.fed_end)

@@ -44,8 +44,9 @@ from typing import Any
 
 from nullsteer.station.bearing import FedEnd as End
 from nullsteer.station.bearing import fed_end_for_null
-from nullsteer.station.config import Station, check_unknown, get_bool, get_float, get_str
 from nullsteer.errors import ConfigError
+from nullsteer.station.config import Station, check_unknown, get_float
+from nullsteer.station.schema import REQUIRED, Key, Kind, Section
 
 #: Band names accepted in ``bands = { ... }``, with edges in MHz. Amateur bands take the
 #: widest edges among the three ITU regions (common practice: the region-2 plan for
@@ -68,10 +69,43 @@ BAND_EDGES_MHZ: dict[str, tuple[float, float]] = {
     "10m": (28.000, 29.700),
 }
 
-PRESET_KEYS = frozenset({"fed_end", "null_bearing_deg", "ohms", "open", "bands"})
-_BAND_KEYS = frozenset({"ohms", "open"})
-_RANGE_KEYS = frozenset({"freq_lo_mhz", "freq_hi_mhz", "ohms", "open"})
 _MAX_OHMS = 1.0e6
+
+PRESET = Section("presets", """`[presets]` maps a name to an inline table, e.g.
+`dx-east = { fed_end = "A", ohms = 900.0 }` or `no-null = { open = true }`; `nullsteer set
+--preset NAME`, the schedule's rules and the page use them by name. Give `fed_end` or
+`null_bearing_deg`, and `ohms` or `open = true`.""", (
+    Key("fed_end", Kind.STRING, "The corner connected to the receiver; the rear null points "
+        "toward the other, terminated end. Optional with `open = true` (then A).",
+        choices=("A", "B")),
+    Key("null_bearing_deg", Kind.NUMBER, "Instead of `fed_end`: the compass bearing the null "
+        "should point to; the fed end whose null is nearer wins (a tie goes to A). Needs "
+        "`antenna.end_a_bearing_deg`.", "deg", None, 0.0, 360.0),
+    Key("ohms", Kind.NUMBER, "Termination; the board uses its ladder setting nearest by "
+        "ratio. Required unless `open = true`.", "ohm", None, 0.0, _MAX_OHMS,
+        exclusive_min=True),
+    Key("open", Kind.BOOLEAN, "Termination disconnected (no rear null); `ohms`, "
+        "`null_bearing_deg` and `bands` are then not allowed.", default=False),
+    Key("bands", Kind.ANY, "Per-band overrides: a table keyed by band name "
+        "(`{ \"160m\" = { ohms = 950.0 } }`; names: "
+        + ", ".join(f"`{b}`" for b in BAND_EDGES_MHZ) + ") or a list of ranges "
+        "(`[ { freq_lo_mhz = 0.52, freq_hi_mhz = 1.0, ohms = 1100.0 } ]`); see below."),
+), form="entry")
+
+BANDS = Section("presets.bands", """One override inside a preset's `bands`. Ranges include
+both edges and must not overlap (a shared edge belongs to the lower range); a frequency
+outside every override uses the preset's own `ohms`.""", (
+    Key("ohms", Kind.NUMBER, "Termination on this band; required unless `open = true`.",
+        "ohm", None, 0.0, _MAX_OHMS, exclusive_min=True),
+    Key("open", Kind.BOOLEAN, "Termination disconnected on this band.", default=False),
+    Key("freq_lo_mhz", Kind.NUMBER, "List form only: lower edge.", "MHz", None, 0.01, 1000.0),
+    Key("freq_hi_mhz", Kind.NUMBER, "List form only: upper edge, above `freq_lo_mhz`.", "MHz",
+        None, 0.01, 1000.0),
+), form="entry")
+
+PRESET_KEYS = PRESET.names
+_BAND_KEYS = frozenset({"ohms", "open"})
+_RANGE_KEYS = BANDS.names
 
 
 @dataclass(frozen=True)
@@ -158,20 +192,19 @@ class Preset:
 
 
 def _read_ohms(table: dict[str, Any], where: str) -> float:
-    return get_float(table, "ohms", where, minimum=0.0, exclusive_min=True, maximum=_MAX_OHMS)
+    if "ohms" not in table:
+        raise ConfigError(f"{where}.ohms", "is required (or open = true)")
+    return PRESET.get(table, "ohms", where)
 
 
 def _read_override(table: Any, where: str, allowed: frozenset[str]) -> tuple[float | None, bool]:
     if not isinstance(table, dict):
         raise ConfigError(where, "must be a table such as { ohms = 900.0 }")
     check_unknown(table, allowed, where)
-    is_open = get_bool(table, "open", where, default=False)
-    if is_open:
+    if BANDS.get(table, "open", where):
         if "ohms" in table:
             raise ConfigError(f"{where}.ohms", "cannot be combined with open = true")
         return None, True
-    if "ohms" not in table:
-        raise ConfigError(f"{where}.ohms", "is required (or open = true)")
     return _read_ohms(table, where), False
 
 
@@ -191,8 +224,8 @@ def _parse_bands(value: Any, where: str) -> tuple[BandSetting, ...]:
         for i, entry in enumerate(value):
             key = f"{where}[{i}]"
             ohms, is_open = _read_override(entry, key, _RANGE_KEYS)
-            lo = get_float(entry, "freq_lo_mhz", key, minimum=0.01, maximum=1000.0)
-            hi = get_float(entry, "freq_hi_mhz", key, minimum=0.01, maximum=1000.0)
+            lo = BANDS.get(entry, "freq_lo_mhz", key, default=REQUIRED)
+            hi = BANDS.get(entry, "freq_hi_mhz", key, default=REQUIRED)
             if hi <= lo:
                 raise ConfigError(f"{key}.freq_hi_mhz", f"must be above freq_lo_mhz ({lo:g})")
             items.append(BandSetting(f"{lo:g}-{hi:g} MHz", lo * 1e6, hi * 1e6, ohms, is_open))
@@ -220,25 +253,24 @@ def parse_preset(name: str, table: Any, end_a_bearing_deg: float | None) -> Pres
     where = f"presets.{name}"
     if not isinstance(table, dict):
         raise ConfigError(where, "must be a table such as { fed_end = \"A\", ohms = 900.0 }")
-    check_unknown(table, PRESET_KEYS, where)
-    is_open = get_bool(table, "open", where, default=False)
-    if is_open:
+    PRESET.check(table, where)
+    if PRESET.get(table, "open", where):
         for key in ("ohms", "null_bearing_deg", "bands"):
             if key in table:
                 raise ConfigError(f"{where}.{key}", "cannot be combined with open = true")
-        fed = End(get_str(table, "fed_end", where, default="A", choices=("A", "B")))
+        fed = End(PRESET.get(table, "fed_end", where, default="A"))
         return Preset(name=name, fed_end=fed, ohms=None, open=True)
     if "fed_end" in table and "null_bearing_deg" in table:
         raise ConfigError(f"{where}.null_bearing_deg", "give either fed_end or null_bearing_deg")
     wanted: float | None = None
     if "null_bearing_deg" in table:
-        wanted = get_float(table, "null_bearing_deg", where, minimum=0.0, maximum=360.0)
+        wanted = PRESET.get(table, "null_bearing_deg", where)
         if end_a_bearing_deg is None:
             raise ConfigError(f"{where}.null_bearing_deg",
                               "needs antenna.end_a_bearing_deg to choose the fed end")
         fed, _ = fed_end_for_null(wanted, end_a_bearing_deg)
     elif "fed_end" in table:
-        fed = End(get_str(table, "fed_end", where, choices=("A", "B")))
+        fed = End(PRESET.get(table, "fed_end", where))
     else:
         raise ConfigError(f"{where}.fed_end", "is required (or null_bearing_deg, or open = true)")
     bands = _parse_bands(table["bands"], f"{where}.bands") if "bands" in table else ()
@@ -252,7 +284,7 @@ def parse_presets(station: Station) -> dict[str, Preset]:
     antenna = station.section("antenna")
     end_a: float | None = None
     if "end_a_bearing_deg" in antenna:
-        end_a = get_float(antenna, "end_a_bearing_deg", "antenna", minimum=0.0, maximum=360.0)
+        end_a = get_float(antenna, "end_a_bearing_deg", "antenna", minimum=-360.0, maximum=360.0)
     return {name: parse_preset(name, table, end_a) for name, table in section.items()}
 
 

@@ -136,12 +136,14 @@ class Section:
     def get(self, table: dict[str, Any], name: str, where: str, **override: Any) -> Any:
         """Read key ``name`` of ``table`` with its type, default and range.
 
-        ``override`` replaces a field of the key for this read (e.g. a maximum that
+        A key whose default is None reads as None when absent. ``override`` replaces a field of the key for this read (e.g. a maximum that
         depends on another key); the reference shows the declared one.
         """
         k = self.key(name)
         fields = {"default": k.default, "minimum": k.minimum, "maximum": k.maximum,
                   "exclusive_min": k.exclusive_min, "choices": k.choices, **override}
+        if fields["default"] is None and name not in table:
+            return None  # absence means "not used"
         default = _MISSING_DEFAULT if fields["default"] is REQUIRED else fields["default"]
         kwargs: dict[str, Any] = {} if default is _MISSING_DEFAULT else {"default": default}
         if k.kind is Kind.NUMBER:
@@ -170,8 +172,8 @@ def registered() -> dict[str, Section]:
 
 def section_markdown(sec: Section) -> str:
     """One section of the reference: heading, description, a table of its keys."""
-    title = {"array": f"[[{sec.name}]]", "entry": f"{sec.name} entries"}.get(sec.form,
-                                                                            f"[{sec.name}]")
+    entry = f"[{sec.name}] entries" if "." not in sec.name else f"{sec.name} entries"
+    title = {"array": f"[[{sec.name}]]", "entry": entry}.get(sec.form, f"[{sec.name}]")
     lines = [f"## `{title}`", "", sec.doc.strip(), "",
              "| key | type | unit | default | range | meaning |",
              "| --- | --- | --- | --- | --- | --- |"]
