@@ -53,8 +53,12 @@ def test_retained_state_survives_a_broker_restart(make_broker):
     # (mosquitto.conf(5), "persistence"); the broker is stopped cleanly (SIGTERM).
     broker = make_broker(persistence=True)
     with MqttSimBoard(block(broker)) as board:
-        with Controller(open_link(broker.url(DEV)), timeout_s=2.0) as c:
+        link = open_link(broker.url(DEV))
+        with Controller(link, timeout_s=2.0) as c:
             c.set_state(FedEnd.B, 21, True)
+            # the board answers first and publishes its retained state after: the
+            # broker must hold the new state before the board is cut off
+            assert link.wait_state(lambda s: s["mask"] == 21, 3.0) is not None
         board.kill()
     broker.restart()
     w = Watcher(broker.host, broker.port, [T + "state", T + "avail"])
